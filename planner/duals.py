@@ -1,0 +1,440 @@
+"""Site prices from the residual graph of an optimal flow: potentials, exact ranges, certificate.
+
+Sign convention: a potential ``pi`` is dual feasible when every arc of the
+residual graph has a non-negative reduced cost ``r = c + pi(tail) - pi(head)``
+(forward arcs with spare capacity at cost ``c``, backward arcs of positive flow
+at cost ``-c``). Prices then rise along the direction of flow: a customer's
+price is the marginal delivered cost of one more unit there. Potentials are
+fixed up to a constant; ``pi(SPARE) = 0`` reads "unused supply is worth
+nothing".
+
+When the optimal flow is degenerate the dual is not unique. The exact range of
+optimal duals at a node ``v`` is
+
+* ``price_high(v) = dist(SPARE -> v)``, the cost of one more unit needed at
+  ``v`` (the right derivative of the optimal cost), and
+* ``price_low(v) = -dist(v -> SPARE)``, the saving from one unit less needed
+  at ``v`` (the left derivative),
+
+with distances in the residual graph. Both vectors are optimal duals. They are
+computed from one feasible potential (a Bellman-Ford pass) and two Dijkstra
+runs on the non-negative reduced costs [1]_ [2]_.
+
+The certificate checks, on the scaled integers, primal feasibility, dual
+feasibility and strong duality: the primal cost equals the dual objective
+``-sum_v b_v pi_v + sum_a (l_a max(r_a, 0) + u_a min(r_a, 0))`` exactly [3]_.
+
+References
+----------
+.. [1] R. K. Ahuja, T. L. Magnanti and J. B. Orlin, *Network Flows: Theory,
+   Algorithms, and Applications*, Prentice Hall, 1993, chapter 9 (optimality
+   conditions, reduced costs) and section 4.6 (potentials and Dijkstra).
+.. [2] D. B. Johnson, "Efficient algorithms for shortest paths in sparse
+   networks", Journal of the ACM 24(1), 1977 (reweighting with a potential).
+.. [3] L. V. Kantorovich, "On the translocation of masses", Doklady Akademii
+   Nauk SSSR 37, 1942 (the dual of the transport problem).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.sparse as sp
+from scipy.sparse.csgraph import dijkstra
+
+from planner.instance import INT64_MAX, ArcKind, Instance
+from planner.solve import exact_dot
+
+#: Residual capacity of an arc without an upper bound.
+UNLIMITED = INT64_MAX
+
+
+class DualError(RuntimeError):
+    """The flow is not optimal (a negative residual cycle) or a check failed."""
+
+
+@dataclass(frozen=True)
+class Residual:
+    """Residual graph of a flow: one row per residual arc.
+
+    ``arc`` is the index of the instance arc; ``forward`` says whether the
+    residual arc follows it (spare capacity, cost ``c``) or runs against it
+    (positive flow above the lower bound, cost ``-c``).
+    """
+
+    tail: np.ndarray
+    head: np.ndarray
+    weight: np.ndarray
+    capacity: np.ndarray
+    arc: np.ndarray
+    forward: np.ndarray
+
+
+def residual_graph(inst: Instance, flow: np.ndarray) -> Residual:
+    """Residual graph of ``flow`` in ``inst``.
+
+    Examples
+    --------
+    >>> from planner.instance import WeekData, assemble_instance
+    >>> from planner.solve import solve_flow
+    >>> inst = assemble_instance(WeekData.from_arrays([0, 2], [0], [1], [7],
+    ...                                                supply=[5, 0], demand=[0, 5]))
+    >>> res = residual_graph(inst, solve_flow(inst).flow)
+    >>> sorted(zip(res.tail.tolist(), res.head.tolist(), res.weight.tolist()))
+    [(0, 1, 7), (0, 2, 0), (1, 0, -7)]
+    """
+    flow = np.asarray(flow, dtype=np.int64)
+    fwd = np.flatnonzero(inst.unlimited | (flow < inst.upper))
+    bwd = np.flatnonzero(flow > inst.lower)
+    fcap = np.where(inst.unlimited[fwd], UNLIMITED, inst.upper[fwd] - flow[fwd])
+    return Residual(
+        tail=np.concatenate([inst.tail[fwd], inst.head[bwd]]),
+        head=np.concatenate([inst.head[fwd], inst.tail[bwd]]),
+        weight=np.concatenate([inst.cost[fwd], -inst.cost[bwd]]),
+        capacity=np.concatenate([fcap, flow[bwd] - inst.lower[bwd]]),
+        arc=np.concatenate([fwd, bwd]),
+        forward=np.concatenate([np.ones(fwd.shape[0], bool), np.zeros(bwd.shape[0], bool)]),
+    )
+
+
+def feasible_potential(inst: Instance, res: Residual) -> np.ndarray:
+    """A dual-feasible potential, normalised so that ``pi(SPARE) = 0``.
+
+    A label-correcting Bellman-Ford pass from a virtual source joined to every
+    node at cost 0, processing only the nodes whose label changed in the
+    previous round, fully vectorised.
+
+    Parameters
+    ----------
+    inst : Instance
+    res : Residual
+        Residual graph of an optimal flow.
+
+    Returns
+    -------
+    numpy.ndarray of int64
+
+    Raises
+    ------
+    DualError
+        When the residual graph has a negative cycle, i.e. the flow is not optimal.
+
+    References
+    ----------
+    .. [1] R. Bellman, "On a routing problem", Quarterly of Applied
+       Mathematics 16, 1958.
+    """
+    n = inst.n_nodes
+    order = np.argsort(res.tail, kind="stable")
+    tail = res.tail[order]
+    head = res.head[order]
+    weight = res.weight[order]
+    indptr = np.searchsorted(tail, np.arange(n + 1))
+    d = np.zeros(n, dtype=np.int64)
+    # Only negative arcs can lower a label from its start value 0.
+    active = np.unique(tail[weight < 0])
+    for _ in range(n + 1):
+        if active.shape[0] == 0:
+            return d - d[inst.spare]
+        idx = _out_arcs(indptr, active)
+        cand = d[tail[idx]] + weight[idx]
+        to = head[idx]
+        better = cand < d[to]
+        to, cand = to[better], cand[better]
+        np.minimum.at(d, to, cand)
+        active = np.unique(to)
+    raise DualError("the residual graph has a negative cycle: the flow is not optimal")
+
+
+def _out_arcs(indptr: np.ndarray, nodes: np.ndarray) -> np.ndarray:
+    """Indices of the arcs leaving ``nodes`` in a CSR layout, concatenated."""
+    starts = indptr[nodes]
+    counts = indptr[nodes + 1] - starts
+    total = int(counts.sum())
+    if total == 0:
+        return np.empty(0, dtype=np.int64)
+    # arange per node without a Python loop: offsets restart at each node.
+    shift = np.repeat(starts - np.cumsum(counts) + counts, counts)
+    return np.arange(total, dtype=np.int64) + shift
+
+
+@dataclass(frozen=True)
+class PriceRanges:
+    """Exact range of optimal duals at every node (scaled integers).
+
+    ``high``/``low`` are valid where ``has_high``/``has_low`` is True.
+    ``high_units`` is the residual capacity of the cheapest path from SPARE
+    (units for which ``high`` holds at least). ``price`` is the stored single
+    optimal dual: ``high`` wherever it is finite, elsewhere the feasible
+    potential lifted by the least constant that keeps it feasible.
+    """
+
+    potential: np.ndarray
+    high: np.ndarray
+    low: np.ndarray
+    has_high: np.ndarray
+    has_low: np.ndarray
+    high_units: np.ndarray
+    price: np.ndarray
+    pred_high: np.ndarray
+    pred_high_arc: np.ndarray
+
+
+def price_ranges(inst: Instance, res: Residual, potential: np.ndarray) -> PriceRanges:
+    """Left and right derivatives of the optimal cost at every node.
+
+    Parameters
+    ----------
+    inst : Instance
+    res : Residual
+        Residual graph of an optimal flow.
+    potential : numpy.ndarray
+        A feasible potential with ``pi(SPARE) = 0`` (:func:`feasible_potential`).
+
+    Returns
+    -------
+    PriceRanges
+
+    Raises
+    ------
+    DualError
+        When the potential is not feasible or a distance fails its exact check.
+
+    Examples
+    --------
+    One plant with 2 spare units, one customer; the lane's cost is the price:
+
+    >>> from planner.instance import WeekData, assemble_instance
+    >>> from planner.solve import solve_flow
+    >>> inst = assemble_instance(WeekData.from_arrays([0, 2], [0], [1], [7],
+    ...                                                supply=[5, 0], demand=[0, 3]))
+    >>> res = residual_graph(inst, solve_flow(inst).flow)
+    >>> pr = price_ranges(inst, res, feasible_potential(inst, res))
+    >>> pr.low.tolist()[:2], pr.high.tolist()[:2], pr.high_units.tolist()[:2]
+    ([0, 7], [0, 7], [2, 2])
+    """
+    n = inst.n_nodes
+    pi = np.asarray(potential, dtype=np.int64)
+    reduced = res.weight + pi[res.tail] - pi[res.head]
+    if reduced.shape[0] and reduced.min() < 0:
+        raise DualError("the potential is not dual feasible")
+
+    fwd = _ShortestPaths(n, res.tail, res.head, reduced, res.capacity, inst.spare)
+    rev = _ShortestPaths(n, res.head, res.tail, reduced, res.capacity, inst.spare)
+    has_high = fwd.reached
+    has_low = rev.reached
+    high = np.where(has_high, fwd.dist + pi, 0)
+    low = np.where(has_low, pi - rev.dist, 0)
+
+    # Stored price: high where finite; nodes that SPARE cannot reach form a set
+    # with no residual arc entering from the reached set, so lifting the
+    # feasible potential there by K keeps every reduced cost >= 0.
+    cross = (~has_high[res.tail]) & has_high[res.head]
+    lift = 0
+    if cross.any():
+        lift = max(0, int((high[res.head[cross]] - pi[res.tail[cross]] - res.weight[cross]).max()))
+    price = np.where(has_high, high, pi + lift)
+
+    return PriceRanges(
+        potential=pi,
+        high=high,
+        low=low,
+        has_high=has_high,
+        has_low=has_low,
+        high_units=fwd.bottleneck(),
+        price=price,
+        pred_high=fwd.pred,
+        pred_high_arc=fwd.pred_arc,
+    )
+
+
+class _ShortestPaths:
+    """Dijkstra from one source on non-negative integer weights, checked exactly.
+
+    Parallel arcs are merged (least weight kept, capacities of the tied arcs
+    summed); the CSR matrix is built by hand so that zero weights stay
+    explicit entries (scipy's sparse constructors may drop or sum them).
+    """
+
+    def __init__(self, n, tail, head, weight, capacity, source):
+        key = tail.astype(np.int64) * n + head
+        order = np.lexsort((weight, key))
+        key_s, w_s, cap_s = key[order], weight[order], capacity[order]
+        first = np.ones(key_s.shape[0], dtype=bool)
+        first[1:] = key_s[1:] != key_s[:-1]
+        group = np.cumsum(first) - 1
+        starts = np.flatnonzero(first)
+        w_min = w_s[starts]
+        tied = w_s == w_min[group]
+        # Sum tied capacities without wrapping int64: five or more tied
+        # unlimited arcs (modes of one lane) would overflow a clipped sum, so
+        # a group with an unlimited arc, or a finite sum past UNLIMITED // 4
+        # (judged in floating point), is unlimited.
+        cap_finite = np.where(tied & (cap_s < UNLIMITED), cap_s, 0)
+        if starts.shape[0]:
+            cap = np.add.reduceat(cap_finite, starts)
+            huge = np.logical_or.reduceat(tied & (cap_s >= UNLIMITED), starts) | (
+                np.add.reduceat(cap_finite.astype(np.float64), starts) >= UNLIMITED // 4
+            )
+            cap = np.where(huge, UNLIMITED, cap)
+        else:
+            cap = cap_finite[:0]
+        self.key = key_s[starts]
+        self.arc = order[starts]  # residual arc index of the least-weight arc
+        self.weight = w_min
+        self.cap = cap
+        self.n = n
+        rows = self.key // n
+        cols = self.key % n
+        indptr = np.searchsorted(rows, np.arange(n + 1))
+        graph = sp.csr_matrix((w_min.astype(np.float64), cols, indptr), shape=(n, n))
+        dist, pred = dijkstra(graph, directed=True, indices=source, return_predecessors=True)
+        self.reached = np.isfinite(dist)
+        self.dist = np.where(self.reached, np.rint(np.where(self.reached, dist, 0)), 0).astype(np.int64)
+        self.pred = np.where(pred < 0, -1, pred).astype(np.int64)
+        self.source = source
+        self._check(rows, cols)
+
+    def _check(self, rows, cols):
+        # Exact Bellman conditions: no arc improves a label, and every reached
+        # node is tight on its tree arc. Together they prove exact distances.
+        r, c = self.reached[rows], self.reached[cols]
+        if np.any(r & ~c):
+            raise DualError("shortest-path check failed: an arc leaves the reached set")
+        both = r & c
+        if np.any(self.dist[cols[both]] > self.dist[rows[both]] + self.weight[both]):
+            raise DualError("shortest-path check failed: a distance is not minimal")
+        v = np.flatnonzero(self.reached & (self.pred >= 0))
+        pos = np.searchsorted(self.key, self.pred[v] * self.n + v)
+        if np.any(self.dist[v] != self.dist[self.pred[v]] + self.weight[pos]):
+            raise DualError("shortest-path check failed: a tree arc is not tight")
+        self.pred_arc = np.full(self.n, -1, dtype=np.int64)
+        self.pred_arc[v] = self.arc[pos]
+        self._tree_cap = np.full(self.n, UNLIMITED, dtype=np.int64)
+        self._tree_cap[v] = self.cap[pos]
+
+    def bottleneck(self) -> np.ndarray:
+        """Least residual capacity on the tree path from the source (pointer jumping)."""
+        anc = np.where(self.pred >= 0, self.pred, np.arange(self.n))
+        val = self._tree_cap.copy()
+        while True:
+            nxt = anc[anc]
+            val = np.minimum(val, val[anc])
+            if np.array_equal(nxt, anc):
+                break
+            anc = nxt
+        return np.where(self.reached, val, 0)
+
+
+@dataclass(frozen=True)
+class Certificate:
+    """Optimality certificate of a flow and a potential, exact on scaled integers."""
+
+    max_conservation_violation: int
+    max_bound_violation: int
+    min_reduced_cost: int | None
+    primal_cost: int
+    dual_objective: int
+
+    @property
+    def gap(self) -> int:
+        return self.primal_cost - self.dual_objective
+
+    @property
+    def ok(self) -> bool:
+        return (
+            self.max_conservation_violation == 0
+            and self.max_bound_violation == 0
+            and (self.min_reduced_cost is None or self.min_reduced_cost >= 0)
+            and self.gap == 0
+        )
+
+
+def certify(inst: Instance, flow: np.ndarray, price: np.ndarray) -> Certificate:
+    """Check primal feasibility, dual feasibility and strong duality exactly.
+
+    Parameters
+    ----------
+    inst : Instance
+    flow : numpy.ndarray of int64, one entry per arc.
+    price : numpy.ndarray of int64, one potential per node.
+
+    Returns
+    -------
+    Certificate
+
+    Examples
+    --------
+    >>> from planner.instance import WeekData, assemble_instance
+    >>> from planner.solve import solve_flow
+    >>> inst = assemble_instance(WeekData.from_arrays([0, 2], [0], [1], [7],
+    ...                                                supply=[5, 0], demand=[0, 3]))
+    >>> flow = solve_flow(inst).flow
+    >>> res = residual_graph(inst, flow)
+    >>> cert = certify(inst, flow, price_ranges(inst, res, feasible_potential(inst, res)).price)
+    >>> cert.ok, cert.primal_cost, cert.dual_objective
+    (True, 21, 21)
+    """
+    flow = np.asarray(flow, dtype=np.int64)
+    pi = np.asarray(price, dtype=np.int64)
+    net = inst.supply.copy()
+    np.subtract.at(net, inst.tail, flow)
+    np.add.at(net, inst.head, flow)
+    conservation = int(np.abs(net).max()) if net.shape[0] else 0
+    bounds = int(max(0, (inst.lower - flow).max(initial=0), (flow - inst.upper).max(initial=0)))
+
+    r = inst.cost + pi[inst.tail] - pi[inst.head]
+    forward_open = inst.unlimited | (flow < inst.upper)
+    backward_open = flow > inst.lower
+    candidates = np.concatenate([r[forward_open], -r[backward_open]])
+    min_rc = int(candidates.min()) if candidates.shape[0] else None
+
+    primal = exact_dot(inst.cost, flow)
+    dual = (
+        -exact_dot(inst.supply, pi)
+        + exact_dot(inst.lower, np.maximum(r, 0))
+        + exact_dot(inst.upper, np.minimum(r, 0))
+    )
+    return Certificate(conservation, bounds, min_rc, primal, dual)
+
+
+def reduced_costs(inst: Instance, price: np.ndarray) -> np.ndarray:
+    """Reduced cost ``c + pi(tail) - pi(head)`` of every arc (scaled integers)."""
+    pi = np.asarray(price, dtype=np.int64)
+    return inst.cost + pi[inst.tail] - pi[inst.head]
+
+
+def capacity_values(inst: Instance, flow: np.ndarray, reduced: np.ndarray) -> np.ndarray:
+    """Value of one more unit of capacity on each arc: ``-r`` where at capacity, else 0.
+
+    Arcs without an upper bound are never at capacity and get 0.
+    """
+    at_cap = (~inst.unlimited) & (np.asarray(flow) >= inst.upper)
+    return np.where(at_cap, np.maximum(-reduced, 0), 0)
+
+
+def marginal_path(inst: Instance, ranges: PriceRanges, res: Residual, node: int) -> list[tuple[int, bool]]:
+    """The residual arcs that the marginal unit travels from SPARE to ``node``.
+
+    Returns a list of ``(arc index, forward)`` from SPARE outwards: a forward
+    step sends one more unit along the arc, a backward step sends one unit
+    less. Empty when ``node`` is SPARE or unreachable.
+    """
+    steps: list[tuple[int, bool]] = []
+    v = int(node)
+    if not ranges.has_high[v]:
+        return steps
+    guard = inst.n_nodes
+    while v != inst.spare and guard > 0:
+        ra = int(ranges.pred_high_arc[v])
+        steps.append((int(res.arc[ra]), bool(res.forward[ra])))
+        v = int(ranges.pred_high[v])
+        guard -= 1
+    steps.reverse()
+    return steps
+
+
+def is_lane(inst: Instance, arc: int) -> bool:
+    """Whether instance arc ``arc`` is an input lane."""
+    return int(inst.arc_kind[arc]) == ArcKind.LANE
