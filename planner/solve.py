@@ -92,6 +92,10 @@ def solve_flow(inst: Instance) -> FlowSolution:
     """
     check_int64(inst)
     start = time.perf_counter()
+    if np.any(inst.lower > inst.upper):
+        # A minimum above its capacity admits no flow; the solver must never
+        # see the negative capacity u - l (it does not return on one).
+        return FlowSolution(INFEASIBLE, None, 0, time.perf_counter() - start)
     solver = min_cost_flow.SimpleMinCostFlow()
     if inst.n_arcs:
         arcs = solver.add_arcs_with_capacity_and_unit_cost(
