@@ -1,0 +1,75 @@
+"""Benchmark one large week end to end: load, solve, prices, store.
+
+Generates 200 plants + 800 warehouses, 50,000 customers and 500,000 lanes,
+writes the CSVs, loads them (CSV to committed rows), solves the week through
+``solve_period`` and times the bare OR-Tools solve on the same arrays in the
+same process. Figures are ratios measured in one run.
+
+    python benchmarks/bench_week.py [--database-url URL] [--lanes 500000]
+"""
+
+from __future__ import annotations
+
+import argparse
+import resource
+import tempfile
+import time
+from pathlib import Path
+
+from planner import db
+from planner.generate import benchmark_network, write_folder
+from planner.ingest import load_folder
+from planner.instance import assemble_instance
+from planner.runs import solve_period
+from planner.snapshot import Scaling, read_snapshot
+from planner.solve import solve_flow
+
+
+def peak_rss_gib() -> float:
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 2**20
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__)
+    parser.add_argument("--database-url", default=None)
+    parser.add_argument("--lanes", type=int, default=500_000)
+    parser.add_argument("--customers", type=int, default=50_000)
+    parser.add_argument("--repeat", type=int, default=3, help="bare solves to take the median of")
+    args = parser.parse_args()
+
+    engine = db.get_engine(db.database_url(args.database_url))
+    db.ensure_schema(engine)
+    frames = benchmark_network(n_customers=args.customers, n_lanes=args.lanes)
+    week = str(frames.supply["period"].iloc[0])
+    with tempfile.TemporaryDirectory() as tmp:
+        folder = write_folder(frames, Path(tmp) / "week")
+        start = time.perf_counter()
+        result = load_folder(engine, folder)
+        load_s = time.perf_counter() - start
+    print(f"load: {load_s:.2f} s ({result.message.splitlines()[0]})")
+
+    summary = solve_period(engine, week)
+    s = summary.seconds
+    pipeline = s["solver"] + s["prices"] + s["store"]
+    print(
+        f"run {summary.run_id}: {summary.status}, certificate "
+        f"{'exact' if summary.certificate_ok else 'FAILED'}, cost {summary.cost}"
+    )
+    print(
+        f"read snapshot {s['read']:.2f} s, solver {s['solver']:.2f} s, prices+ranges+certificate "
+        f"{s['prices']:.2f} s, store {s['store']:.2f} s"
+    )
+
+    with engine.connect() as conn:
+        snapshot = read_snapshot(conn, week)
+    scaling = Scaling()
+    inst = assemble_instance(snapshot.week, cost_scale=scaling.cost_scale, quantity_scale=scaling.quantity_scale)
+    bare = sorted(solve_flow(inst).solver_seconds for _ in range(args.repeat))[args.repeat // 2]
+    print(f"bare OR-Tools solve (median of {args.repeat}): {bare:.2f} s on {inst.n_nodes} nodes, {inst.n_arcs} arcs")
+    print(f"ratio (solve + prices + store) / bare solve: {pipeline / bare:.2f}  (target < 3)")
+    print(f"ratio (ranges + capacity values + certificate) / bare solve: {s['prices'] / bare:.2f}  (target < 0.5)")
+    print(f"peak memory: {peak_rss_gib():.2f} GiB  (target < 2)")
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,251 @@
+"""Why a site has its price: the chain of lanes the marginal unit travels.
+
+A site's ``price_high`` is the length of the cheapest residual path from
+SPARE to the site. Following that path names every step the next unit would
+take: which plant's spare supply it comes from, which lanes carry it (or carry
+one unit less, when a route is rearranged), which warehouse handles it, and
+the running cost.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from planner.duals import PriceRanges, Residual, marginal_path
+from planner.instance import ArcKind, Instance, NodeRole
+
+
+@dataclass(frozen=True)
+class Step:
+    """One step of a marginal route; money in currency per unit."""
+
+    kind: str  #: "lane", "throughput", "spare", "shortage", "stock", "short-feed"
+    forward: bool  #: False when the step carries one unit LESS along the arc
+    label: str
+    unit_cost: float
+    running: float
+
+
+@dataclass
+class Explanation:
+    """The marginal route into a site and its price."""
+
+    site: str
+    period: str
+    price: float | None
+    steps: list[Step] = field(default_factory=list)
+    reason: str = ""
+
+    def text(self) -> str:
+        """One line: ``plant A (value 0.00) -> lane A->W2 road 12.30 -> ... = 42.10``."""
+        if self.price is None:
+            return f"{self.site} in {self.period}: {self.reason}"
+        parts = []
+        for step in self.steps:
+            if step.kind == "spare":
+                parts.append(f"{step.label} (value {step.running:.2f})")
+            elif step.kind == "short-feed":
+                parts.append("unmet demand (SHORT)")
+            elif step.kind == "lane":
+                sign = "" if step.forward else "one unit less on "
+                parts.append(f"{sign}lane {step.label} {step.unit_cost:.2f}")
+            elif step.kind == "throughput":
+                parts.append(f"through {step.label} {step.unit_cost:.2f}")
+            elif step.kind == "shortage":
+                parts.append(f"short at {step.label} {step.unit_cost:.2f}")
+            elif step.kind == "stock":
+                parts.append(f"{'stock' if step.forward else 'one unit less stock'} {step.label} {step.unit_cost:.2f}")
+        if not parts:
+            return f"{self.site} in {self.period}: spare supply itself, price {self.price:.2f}"
+        return " -> ".join(parts) + f" = {self.price:.2f}"
+
+
+def explain_node(
+    inst: Instance,
+    ranges: PriceRanges,
+    res: Residual,
+    node: int,
+    *,
+    site_codes,
+    lane_labels,
+    period_codes,
+    site_kinds=None,
+) -> Explanation:
+    """Explain ``price_high`` at ``node`` by its cheapest residual path from SPARE.
+
+    Parameters
+    ----------
+    inst, ranges, res
+        An instance, its price ranges and the residual graph they came from.
+    node : int
+        Node index (``inst.site_node[t, s]`` for site ``s`` in period ``t``).
+    site_codes, lane_labels, period_codes : sequences of str
+        Names for sites, lanes (per lane index) and periods.
+    site_kinds : sequence of str, optional
+        ``plant``/``warehouse``/``customer`` per site, to prefix site names.
+
+    Returns
+    -------
+    Explanation
+
+    Examples
+    --------
+    >>> from planner.instance import WeekData, assemble_instance
+    >>> from planner.optimize import optimize
+    >>> w = WeekData.from_arrays([0, 1, 2], [0, 1], [1, 2], [123_000, 298_000],
+    ...                          supply=[9, 0, 0], demand=[0, 0, 4])
+    >>> inst = assemble_instance(w)
+    >>> out = optimize(inst)
+    >>> e = explain_node(inst, out.ranges, out.residual, 2, site_codes=["A", "W2", "C17"],
+    ...                  lane_labels=["A->W2 road", "W2->C17 road"], period_codes=["2026-W49"],
+    ...                  site_kinds=["plant", "warehouse", "customer"])
+    >>> e.text()
+    'plant A (value 0.00) -> lane A->W2 road 12.30 -> lane W2->C17 road 29.80 = 42.10'
+    """
+    to_money = inst.quantity_scale / inst.cost_scale
+    site = int(inst.node_site[node])
+    period = int(inst.node_period[node])
+    site_name = str(site_codes[site]) if site >= 0 else NodeRole(int(inst.node_role[node])).name
+    period_name = str(period_codes[period]) if period >= 0 else ""
+    if not ranges.has_high[node]:
+        from planner.store import HIGH_REASON
+
+        return Explanation(site_name, period_name, None, reason=HIGH_REASON)
+
+    def name(s: int) -> str:
+        prefix = f"{site_kinds[s]} " if site_kinds is not None else ""
+        return f"{prefix}{site_codes[s]}"
+
+    steps: list[Step] = []
+    running = 0
+    for arc, forward in marginal_path(inst, ranges, res, node):
+        kind = ArcKind(int(inst.arc_kind[arc]))
+        cost = int(inst.cost[arc]) if forward else -int(inst.cost[arc])
+        running += cost
+        ref = int(inst.arc_ref[arc])
+        t = int(inst.arc_period[arc])
+        when = f" in {period_codes[t]}" if len(period_codes) > 1 and t >= 0 else ""
+        if kind == ArcKind.TO_SPARE:
+            label, k = name(ref) + when, "spare"
+        elif kind == ArcKind.SPARE_TO_SHORT:
+            label, k = "SHORT", "short-feed"
+        elif kind == ArcKind.LANE:
+            label, k = str(lane_labels[ref]) + when, "lane"
+        elif kind == ArcKind.THROUGHPUT:
+            label, k = name(ref) + when, "throughput"
+        elif kind == ArcKind.SHORTAGE:
+            label, k = name(ref) + when, "shortage"
+        else:
+            label, k = f"at {name(ref)} from {period_codes[t]}", "stock"
+        steps.append(Step(k, forward, label, cost * to_money, running * to_money))
+    return Explanation(site_name, period_name, float(ranges.high[node]) * to_money, steps)
+
+
+def node_of(inst: Instance, site_index: int, period_index: int = 0) -> int:
+    """The node where site ``site_index``'s units arrive in ``period_index``."""
+    return int(np.asarray(inst.site_node)[period_index, site_index])
+
+
+def stored_flow(inst: Instance, lane_flow: np.ndarray, site_spare: np.ndarray,
+                site_shortage: np.ndarray, site_throughput: np.ndarray) -> np.ndarray:
+    """Rebuild the flow on every arc of a one-period instance from a stored run.
+
+    Parameters
+    ----------
+    lane_flow : scaled flow per lane index.
+    site_spare, site_shortage, site_throughput : scaled figures per site index.
+    """
+    flow = np.zeros(inst.n_arcs, dtype=np.int64)
+    kind, ref = inst.arc_kind, inst.arc_ref
+    for arc_kind, per_ref in (
+        (ArcKind.LANE, lane_flow),
+        (ArcKind.TO_SPARE, site_spare),
+        (ArcKind.SHORTAGE, site_shortage),
+        (ArcKind.THROUGHPUT, site_throughput),
+    ):
+        sel = kind == arc_kind
+        flow[sel] = np.asarray(per_ref, dtype=np.int64)[ref[sel]]
+    flow[kind == ArcKind.SPARE_TO_SHORT] = int(np.asarray(site_shortage).sum())
+    return flow
+
+
+def explain_site(engine, site: str, period: str, run_id: int | None = None) -> Explanation:
+    """Explain a site's price in the latest optimal run of ``period`` (or run ``run_id``).
+
+    The flow is read back from the stored run, so the route shown is the one
+    of the plan that was stored.
+
+    Raises
+    ------
+    PlannerError
+        When there is no optimal run of the period or the site is not in it.
+    """
+    from sqlalchemy import text
+
+    from planner.duals import feasible_potential, price_ranges, residual_graph
+    from planner.errors import PlannerError
+    from planner.instance import assemble_instance
+    from planner.snapshot import Scaling, copy_frame, read_snapshot
+
+    with engine.connect() as conn:
+        row = conn.execute(
+            text(
+                "SELECT r.id, r.batch_id, r.cost_decimals, r.quantity_decimals FROM solve_run r "
+                "JOIN period p ON p.id = r.period_id WHERE p.code = :period AND r.kind = 'week' "
+                "AND r.status = 'optimal' AND (CAST(:run AS bigint) IS NULL OR r.id = :run) "
+                "ORDER BY r.finished_at DESC, r.id DESC LIMIT 1"
+            ),
+            {"period": period, "run": run_id},
+        ).first()
+        if row is None:
+            raise PlannerError(
+                f"no optimal run of {period}" + (f" with id {run_id}" if run_id else "")
+                + f"; solve it first with `planner solve --period {period}`"
+            )
+        run, batch, cd, qd = (int(v) for v in row)
+        scaling = Scaling(cd, qd)
+        snap = read_snapshot(conn, period, scaling, batch_id=batch)
+        q = scaling.quantity_scale
+        flows = copy_frame(
+            conn,
+            "SELECT lane_id, (flow * %(q)s)::bigint FROM run_flow WHERE run_id = %(r)s",
+            {"q": q, "r": run},
+            ["lane_id", "flow"],
+        )
+        sites = copy_frame(
+            conn,
+            "SELECT site_id, (coalesce(spare, 0) * %(q)s)::bigint, "
+            "(coalesce(shortage, 0) * %(q)s)::bigint, (coalesce(throughput_flow, 0) * %(q)s)::bigint "
+            "FROM run_site_price WHERE run_id = %(r)s",
+            {"q": q, "r": run},
+            ["site_id", "spare", "shortage", "throughput"],
+        )
+    matches = np.flatnonzero(snap.site_code == site)
+    if matches.shape[0] == 0:
+        raise PlannerError(f"site {site} is not in the snapshot of {period}; check the site code")
+    inst = assemble_instance(snap.week, cost_scale=scaling.cost_scale, quantity_scale=q)
+    lane_flow = np.zeros(snap.lane_id.shape[0], np.int64)
+    lane_flow[np.searchsorted(snap.lane_id, flows["lane_id"].to_numpy(np.int64))] = flows["flow"].to_numpy(np.int64)
+    per_site = np.searchsorted(snap.site_id, sites["site_id"].to_numpy(np.int64))
+
+    def site_values(column: str) -> np.ndarray:
+        out = np.zeros(snap.site_id.shape[0], np.int64)
+        out[per_site] = sites[column].to_numpy(np.int64)
+        return out
+
+    flow = stored_flow(inst, lane_flow, site_values("spare"), site_values("shortage"), site_values("throughput"))
+    res = residual_graph(inst, flow)
+    ranges = price_ranges(inst, res, feasible_potential(inst, res))
+    explanation = explain_node(
+        inst,
+        ranges,
+        res,
+        node_of(inst, int(matches[0])),
+        site_codes=snap.site_code,
+        lane_labels=snap.lane_labels(),
+        period_codes=[period],
+        site_kinds=snap.site_kind_name,
+    )
+    return explanation

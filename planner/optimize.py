@@ -1,0 +1,135 @@
+"""One solve, start to finish, on arrays: flow, prices, ranges, certificate, diagnosis.
+
+This is the functional core's single entry point: it takes an
+:class:`~planner.instance.Instance` and returns everything a run stores,
+knowing nothing of the database.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from planner import duals
+from planner.diagnose import describe_cycle, diagnose_infeasible, find_unbounded_cycle
+from planner.instance import ArcKind, Instance, OverflowError_
+from planner.solve import INFEASIBLE, OPTIMAL, UNBOUNDED, solve_flow
+
+FAILED = "failed"
+
+
+@dataclass
+class Outcome:
+    """Result of :func:`optimize`.
+
+    ``status`` is ``optimal``, ``infeasible``, ``unbounded`` or ``failed``
+    (overflow, or a certificate that did not hold). Arrays are None unless the
+    flow is optimal. All money figures are scaled integers of the instance.
+    """
+
+    status: str
+    message: str = ""
+    flow: np.ndarray | None = None
+    ranges: duals.PriceRanges | None = None
+    residual: duals.Residual | None = None
+    reduced: np.ndarray | None = None
+    capacity_value: np.ndarray | None = None
+    certificate: duals.Certificate | None = None
+    solver_seconds: float = 0.0
+    dual_seconds: float = 0.0
+    timings: dict = field(default_factory=dict)
+
+    @property
+    def ok(self) -> bool:
+        return self.status == OPTIMAL
+
+
+def optimize(
+    inst: Instance,
+    *,
+    site_codes=None,
+    lane_labels=None,
+    period_codes=None,
+) -> Outcome:
+    """Solve ``inst`` and derive its prices, ranges, capacity values and certificate.
+
+    Parameters
+    ----------
+    inst : Instance
+    site_codes, lane_labels, period_codes : sequence of str, optional
+        Names used in the messages of bad weeks.
+
+    Returns
+    -------
+    Outcome
+        Never raises for a bad week: infeasible, unbounded and overflowing
+        instances come back with their status and a message a planner can act on.
+
+    Examples
+    --------
+    >>> from planner.instance import WeekData, assemble_instance
+    >>> w = WeekData.from_arrays([0, 2], [0], [1], [70_000], supply=[5, 0], demand=[0, 3])
+    >>> out = optimize(assemble_instance(w))
+    >>> out.status, out.certificate.ok, int(out.ranges.price[1])
+    ('optimal', True, 70000)
+    """
+    try:
+        cycle = find_unbounded_cycle(inst)
+        if cycle is not None:
+            return Outcome(UNBOUNDED, describe_cycle(inst, cycle, lane_labels=lane_labels))
+        sol = solve_flow(inst)
+    except OverflowError_ as err:
+        return Outcome(FAILED, str(err))
+    if sol.status == INFEASIBLE:
+        diagnosis = diagnose_infeasible(
+            inst, site_codes=site_codes, lane_labels=lane_labels, period_codes=period_codes
+        )
+        return Outcome(INFEASIBLE, diagnosis.message, solver_seconds=sol.solver_seconds)
+
+    start = time.perf_counter()
+    res = duals.residual_graph(inst, sol.flow)
+    potential = duals.feasible_potential(inst, res)
+    t_potential = time.perf_counter()
+    ranges = duals.price_ranges(inst, res, potential)
+    t_ranges = time.perf_counter()
+    reduced = duals.reduced_costs(inst, ranges.price)
+    cap_value = duals.capacity_values(inst, sol.flow, reduced)
+    cert = duals.certify(inst, sol.flow, ranges.price)
+    end = time.perf_counter()
+    out = Outcome(
+        OPTIMAL,
+        flow=sol.flow,
+        ranges=ranges,
+        residual=res,
+        reduced=reduced,
+        capacity_value=cap_value,
+        certificate=cert,
+        solver_seconds=sol.solver_seconds,
+        dual_seconds=end - start,
+        timings={
+            "potential": t_potential - start,
+            "ranges": t_ranges - t_potential,
+            "certificate": end - t_ranges,
+        },
+    )
+    if not cert.ok:
+        out.status = FAILED
+        out.message = (
+            "optimality certificate failed: "
+            f"conservation {cert.max_conservation_violation}, bounds {cert.max_bound_violation}, "
+            f"min reduced cost {cert.min_reduced_cost}, primal {cert.primal_cost}, "
+            f"dual {cert.dual_objective}, gap {cert.gap} (scaled integers)"
+        )
+    return out
+
+
+def shortage_units(inst: Instance, flow: np.ndarray) -> int:
+    """Scaled units delivered by SHORT (demand not met)."""
+    return int(flow[inst.arc_kind == ArcKind.SHORTAGE].sum())
+
+
+def spare_units(inst: Instance, flow: np.ndarray) -> int:
+    """Scaled units of plant supply left unused."""
+    return int(flow[inst.arc_kind == ArcKind.TO_SPARE].sum())

@@ -1,0 +1,376 @@
+"""Solve periods stored in PostgreSQL and persist the runs.
+
+``solve_period`` is what ``planner solve --period`` calls: read the current
+snapshot, build the instance, optimise, and store the run with its flows,
+prices and certificate in one transaction. A bad week is stored as a run with
+its status and message; it never leaves half a run behind.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass
+from decimal import Decimal
+
+import numpy as np
+from sqlalchemy import Engine, text
+
+from planner.errors import PlannerError
+from planner.instance import assemble_instance
+from planner.optimize import FAILED, Outcome, optimize, shortage_units
+from planner.snapshot import Scaling, Snapshot, read_snapshot, run_fingerprint
+from planner.store import RunKey, insert_run, store_results, to_decimal
+
+
+@dataclass(frozen=True)
+class RunSummary:
+    """What a finished run reports back."""
+
+    run_id: int
+    period: str
+    status: str
+    cost: Decimal | None
+    shortage: Decimal | None
+    certificate_ok: bool | None
+    message: str
+    seconds: dict
+
+    @property
+    def ok(self) -> bool:
+        return self.status == "optimal"
+
+
+def solve_snapshot(snapshot: Snapshot, scaling: Scaling) -> tuple:
+    """Build and optimise one snapshot (no database): ``(instance, outcome)``."""
+    inst = assemble_instance(
+        snapshot.week, cost_scale=scaling.cost_scale, quantity_scale=scaling.quantity_scale
+    )
+    outcome = optimize(
+        inst,
+        site_codes=snapshot.site_code,
+        lane_labels=snapshot.lane_labels(),
+        period_codes=[snapshot.period],
+    )
+    return inst, outcome
+
+
+def solve_period(engine: Engine, period: str, scaling: Scaling = Scaling()) -> RunSummary:
+    """Solve the current snapshot of ``period`` and store the run.
+
+    Parameters
+    ----------
+    engine : sqlalchemy.Engine
+    period : str
+        ISO week, for example ``"2026-W49"``.
+    scaling : Scaling
+        Decimal places kept for unit costs and quantities.
+
+    Returns
+    -------
+    RunSummary
+        Also for infeasible, unbounded and failed weeks (``ok`` is False).
+
+    Raises
+    ------
+    PlannerError
+        When the period has no snapshot.
+    """
+    start = time.perf_counter()
+    with engine.connect() as conn:
+        snapshot = read_snapshot(conn, period, scaling)
+    key = RunKey(
+        kind="week",
+        period_id=snapshot.period_id,
+        first_period_id=snapshot.period_id,
+        last_period_id=snapshot.period_id,
+        batch_id=snapshot.batch_id,
+        input_fingerprint=run_fingerprint(snapshot.fingerprint, scaling),
+    )
+    try:
+        inst, outcome = solve_snapshot(snapshot, scaling)
+    except PlannerError as err:
+        inst, outcome = None, Outcome(FAILED, str(err))
+    return _store_and_summarise(
+        engine, key, scaling, inst, outcome, start,
+        label=period,
+        period_ids=np.array([snapshot.period_id]),
+        site_ids=snapshot.site_id,
+        lane_ids=snapshot.lane_id,
+        site_kind=snapshot.week.site_kind,
+    )
+
+
+def _store_and_summarise(
+    engine: Engine, key: RunKey, scaling: Scaling, inst, outcome: Outcome, start: float, *,
+    label: str, period_ids, site_ids, lane_ids, site_kind, lane_present=None,
+) -> RunSummary:
+    """Store a run (row, flows, prices, stock) in one transaction and summarise it."""
+    t_solve = time.perf_counter()
+    with engine.begin() as conn:
+        run_id = insert_run(conn, key, scaling, inst, outcome, t_solve - start)
+        if outcome.ok:
+            store_results(
+                conn, run_id, inst, outcome, scaling,
+                period_ids=period_ids, site_ids=site_ids, lane_ids=lane_ids,
+                site_kind=site_kind, lane_present=lane_present,
+            )
+        t_store = time.perf_counter()
+        conn.execute(
+            text("UPDATE solve_run SET total_seconds = :s WHERE id = :id"),
+            {"s": t_store - start, "id": run_id},
+        )
+    cert = outcome.certificate
+    td = scaling.cost_decimals + scaling.quantity_decimals
+    return RunSummary(
+        run_id=run_id,
+        period=label,
+        status=outcome.status,
+        cost=to_decimal(cert.primal_cost, td) if cert is not None and outcome.ok else None,
+        shortage=(
+            to_decimal(shortage_units(inst, outcome.flow), scaling.quantity_decimals)
+            if outcome.ok
+            else None
+        ),
+        certificate_ok=None if cert is None else cert.ok,
+        message=outcome.message,
+        seconds={
+            # reading the snapshot and assembling the instance
+            "read": (t_solve - start) - outcome.solver_seconds - outcome.dual_seconds,
+            "solver": outcome.solver_seconds,
+            "prices": outcome.dual_seconds,
+            "store": t_store - t_solve,
+            "total": t_store - start,
+        },
+    )
+
+
+def select_periods(
+    engine: Engine,
+    *,
+    period: str | None = None,
+    all_periods: bool = False,
+    first: str | None = None,
+    last: str | None = None,
+) -> list[str]:
+    """The loaded periods a solve command asks for, in time order.
+
+    Raises
+    ------
+    PlannerError
+        When the choice is empty, ambiguous or names an unknown period.
+    """
+    from planner.periods import parse_week
+    from planner.snapshot import loaded_periods
+
+    chosen = sum([period is not None, all_periods, first is not None or last is not None])
+    if chosen != 1:
+        raise PlannerError("choose exactly one of --period P, --all, or --from A/--to B")
+    with engine.connect() as conn:
+        loaded = loaded_periods(conn)
+    if period is not None:
+        parse_week(period)
+        if period not in loaded:
+            raise PlannerError(f"period {period} has no loaded snapshot; loaded: {_listing(loaded)}")
+        return [period]
+    if all_periods:
+        if not loaded:
+            raise PlannerError("no periods loaded yet; load a folder with `planner load DIR`")
+        return loaded
+    lo = parse_week(first) if first else None
+    hi = parse_week(last) if last else None
+    picked = [p for p in loaded if (lo is None or parse_week(p) >= lo) and (hi is None or parse_week(p) <= hi)]
+    if not picked:
+        raise PlannerError(f"no loaded period between {first or 'the start'} and {last or 'the end'}")
+    return picked
+
+
+def _listing(codes: list[str]) -> str:
+    if not codes:
+        return "none"
+    return ", ".join(codes[:8]) + (f" and {len(codes) - 8} more" if len(codes) > 8 else "")
+
+
+def period_overview(engine: Engine) -> list[dict]:
+    """Each loaded period with its current batch and its latest run."""
+    with engine.connect() as conn:
+        rows = conn.execute(
+            text(
+                "SELECT p.code AS period, cur.batch_id, r.id AS run_id, r.status, r.primal_cost AS cost, "
+                "r.certificate_ok FROM period p "
+                "JOIN LATERAL (SELECT max(batch_id) AS batch_id FROM period_snapshot ps "
+                "WHERE ps.period_id = p.id) cur ON cur.batch_id IS NOT NULL "
+                "LEFT JOIN LATERAL (SELECT * FROM solve_run sr WHERE sr.period_id = p.id "
+                "AND sr.kind = 'week' ORDER BY sr.finished_at DESC, sr.id DESC LIMIT 1) r ON true "
+                "ORDER BY p.starts_on"
+            )
+        ).mappings()
+        return [dict(r) for r in rows]
+
+
+def run_certificate(engine: Engine, *, period: str | None = None, run_id: int | None = None) -> dict:
+    """The stored certificate of a run (by id, or the latest run of a period).
+
+    Returns
+    -------
+    dict
+        Label -> value, ending with ``certificate``: ``exact`` or ``FAILED``.
+    """
+    if (period is None) == (run_id is None):
+        raise PlannerError("give either --period P or --run ID")
+    with engine.connect() as conn:
+        row = conn.execute(
+            text(
+                "SELECT r.*, p.code AS period_code FROM solve_run r "
+                "LEFT JOIN period p ON p.id = r.period_id "
+                "WHERE (CAST(:run AS bigint) IS NULL OR r.id = :run) "
+                "AND (CAST(:period AS text) IS NULL OR p.code = :period) "
+                "ORDER BY r.finished_at DESC, r.id DESC LIMIT 1"
+            ),
+            {"run": run_id, "period": period},
+        ).mappings().first()
+    if row is None:
+        raise PlannerError("no such run; list runs with `planner periods`")
+    return {
+        "run": row["id"],
+        "period": row["period_code"],
+        "status": row["status"],
+        "message": row["message"],
+        "max conservation violation (units)": row["max_conservation_violation"],
+        "max bound violation (units)": row["max_bound_violation"],
+        "min reduced cost over residual arcs": row["min_reduced_cost"],
+        "primal cost": row["primal_cost"],
+        "dual objective": row["dual_objective"],
+        "difference": row["duality_gap"],
+        "precision": f"{row['cost_decimals']} cost decimals, {row['quantity_decimals']} quantity decimals",
+        "certificate": "exact" if row["certificate_ok"] else "FAILED",
+    }
+
+
+def horizon_snapshots(conn, periods: list[str], scaling: Scaling) -> tuple[list[Snapshot], dict]:
+    """The current snapshots of ``periods`` re-indexed onto one site and lane list.
+
+    Returns the snapshots and a dict with ``site_id``, ``site_code``,
+    ``site_kind``, ``lane_id``, ``lane_labels``, ``lane_present`` (period x lane)
+    and the re-indexed ``weeks`` (:class:`WeekData` per period).
+    """
+    from planner.instance import NONE, WeekData
+
+    snaps = [read_snapshot(conn, p, scaling) for p in periods]
+    site_id = np.unique(np.concatenate([s.site_id for s in snaps]))
+    lane_id = np.unique(np.concatenate([s.lane_id for s in snaps]))
+    n, m = site_id.shape[0], lane_id.shape[0]
+    code = np.empty(n, dtype=object)
+    kind = np.zeros(n, dtype=np.int8)
+    kind_name = np.empty(n, dtype=object)
+    labels = np.empty(m, dtype=object)
+    present = np.zeros((len(snaps), m), dtype=bool)
+    weeks = []
+    # A lane's origin and destination are part of its identity, the same in
+    # every period; a lane missing from a period exists there with no
+    # capacity, so lane indices mean the same in every period of the horizon.
+    origin = np.zeros(m, np.int64)
+    destination = np.zeros(m, np.int64)
+    for t, s in enumerate(snaps):
+        si = np.searchsorted(site_id, s.site_id)
+        li = np.searchsorted(lane_id, s.lane_id)
+        code[si], kind[si], kind_name[si] = s.site_code, s.week.site_kind, s.site_kind_name
+        labels[li] = s.lane_labels()
+        present[t, li] = True
+        origin[li] = si[s.week.lane_origin]
+        destination[li] = si[s.week.lane_destination]
+    for t, s in enumerate(snaps):
+        si = np.searchsorted(site_id, s.site_id)
+        li = np.searchsorted(lane_id, s.lane_id)
+        w = s.week
+
+        def sites(values, default):
+            out = np.full(n, default, dtype=np.int64)
+            out[si] = values
+            return out
+
+        def lanes(values, default):
+            out = np.full(m, default, dtype=np.int64)
+            out[li] = values
+            return out
+
+        weeks.append(
+            WeekData(
+                site_kind=kind,
+                supply=sites(w.supply, 0),
+                demand=sites(w.demand, 0),
+                shortage_penalty=sites(w.shortage_penalty, NONE),
+                throughput_capacity=sites(w.throughput_capacity, NONE),
+                handling_cost=sites(w.handling_cost, 0),
+                lane_origin=origin,
+                lane_destination=destination,
+                lane_cost=lanes(w.lane_cost, 0),
+                lane_capacity=lanes(w.lane_capacity, 0),
+                lane_min=lanes(w.lane_min, 0),
+                holding_cost=sites(w.holding_cost, 0),
+                storage_capacity=sites(w.storage_capacity, 0),
+            )
+        )
+    return snaps, {
+        "site_id": site_id,
+        "site_code": code,
+        "site_kind": kind,
+        "site_kind_name": kind_name,
+        "lane_id": lane_id,
+        "lane_labels": labels,
+        "lane_present": present,
+        "weeks": weeks,
+    }
+
+
+def solve_horizon(engine: Engine, periods: list[str], scaling: Scaling = Scaling()) -> RunSummary:
+    """Solve consecutive weeks as one time-expanded network with stock, and store one run.
+
+    Stock moves from a week to the next at each site's holding cost, up to its
+    storage capacity; supply in the first week includes any opening stock. The
+    run stores flows per week, stock per site and week, and a price per site
+    and week, with one certificate for the whole horizon.
+
+    Raises
+    ------
+    PlannerError
+        When a week of the span has no snapshot.
+    """
+    import hashlib
+
+    from planner.horizon import time_expand
+
+    if not periods:
+        raise PlannerError("the horizon names no weeks")
+    start = time.perf_counter()
+    with engine.connect() as conn:
+        snaps, merged = horizon_snapshots(conn, periods, scaling)
+    fingerprint = hashlib.sha256(
+        "|".join(run_fingerprint(s.fingerprint, scaling) for s in snaps).encode()
+    ).hexdigest()
+    key = RunKey(
+        kind="horizon",
+        period_id=None,
+        first_period_id=snaps[0].period_id,
+        last_period_id=snaps[-1].period_id,
+        batch_id=None,
+        input_fingerprint=fingerprint,
+    )
+    try:
+        inst = time_expand(merged["weeks"], cost_scale=scaling.cost_scale, quantity_scale=scaling.quantity_scale)
+        outcome = optimize(
+            inst,
+            site_codes=merged["site_code"],
+            lane_labels=merged["lane_labels"],
+            period_codes=periods,
+        )
+    except PlannerError as err:
+        inst, outcome = None, Outcome(FAILED, str(err))
+    return _store_and_summarise(
+        engine, key, scaling, inst, outcome, start,
+        label=f"{periods[0]}..{periods[-1]}",
+        period_ids=np.array([s.period_id for s in snaps]),
+        site_ids=merged["site_id"],
+        lane_ids=merged["lane_id"],
+        site_kind=merged["site_kind"],
+        lane_present=merged["lane_present"],
+    )

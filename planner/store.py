@@ -1,0 +1,278 @@
+"""Persist a run: one ``solve_run`` row plus its flows and site prices, in one transaction.
+
+Bulk rows go in with PostgreSQL COPY. Scaled integers are written as exact
+decimal literals in scientific notation (``123456e-4`` is the NUMERIC
+``12.3456``), so nothing is rounded between the solver and the table.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from decimal import Decimal
+
+import numpy as np
+from sqlalchemy import Connection, text
+
+from planner.instance import ArcKind, Instance, SiteKind
+from planner.optimize import Outcome, shortage_units, spare_units
+from planner.snapshot import Scaling
+
+NULL = "\\N"
+
+
+def decimal_text(values: np.ndarray, decimals: int) -> list[str]:
+    """Exact NUMERIC literals for scaled integers (``value * 10**-decimals``).
+
+    Examples
+    --------
+    >>> decimal_text(np.array([123456, -5]), 4)
+    ['123456e-4', '-5e-4']
+    """
+    return list(map(f"{{}}e-{decimals}".format, np.asarray(values, dtype=np.int64).tolist()))
+
+
+def to_decimal(value: int, decimals: int) -> Decimal:
+    """A scaled integer as an exact :class:`~decimal.Decimal`."""
+    return Decimal(value).scaleb(-decimals)
+
+
+def _with_nulls(strings: list[str], present: np.ndarray) -> list[str]:
+    if present.all():
+        return strings
+    arr = np.array(strings, dtype=object)
+    arr[~present] = NULL
+    return arr.tolist()
+
+
+def _copy_rows(conn: Connection, table: str, columns: list[str], cols: list[list[str]]) -> None:
+    """COPY text rows built column-wise (C-level joins, no per-row Python code)."""
+    if not cols or not cols[0]:
+        return
+    body = "\n".join(map("\t".join, zip(*cols))) + "\n"
+    raw = conn.connection.driver_connection
+    with raw.cursor() as cur:
+        with cur.copy(f"COPY {table} ({', '.join(columns)}) FROM STDIN") as copy:
+            copy.write(body)
+
+
+@dataclass(frozen=True)
+class RunKey:
+    """What a run was solved from."""
+
+    kind: str
+    period_id: int | None
+    first_period_id: int
+    last_period_id: int
+    batch_id: int | None
+    input_fingerprint: str
+
+
+def insert_run(
+    conn: Connection,
+    key: RunKey,
+    scaling: Scaling,
+    inst: Instance | None,
+    outcome: Outcome,
+    total_seconds: float,
+) -> int:
+    """Insert the ``solve_run`` row of an outcome and return its id."""
+    cd, qd, td = scaling.cost_decimals, scaling.quantity_decimals, scaling.cost_decimals + scaling.quantity_decimals
+    values = {
+        "kind": key.kind,
+        "period_id": key.period_id,
+        "first": key.first_period_id,
+        "last": key.last_period_id,
+        "batch": key.batch_id,
+        "fp": key.input_fingerprint,
+        "status": outcome.status,
+        "message": outcome.message or None,
+        "cd": cd,
+        "qd": qd,
+        "solver": outcome.solver_seconds,
+        "total": total_seconds,
+        "primal": None,
+        "dual": None,
+        "gap": None,
+        "cons": None,
+        "bound": None,
+        "minrc": None,
+        "ok": None,
+        "short": None,
+        "spare": None,
+        "nodes": inst.n_nodes if inst is not None else None,
+        "arcs": inst.n_arcs if inst is not None else None,
+    }
+    cert = outcome.certificate
+    if cert is not None:
+        values.update(
+            primal=to_decimal(cert.primal_cost, td),
+            dual=to_decimal(cert.dual_objective, td),
+            gap=to_decimal(cert.gap, td),
+            cons=to_decimal(cert.max_conservation_violation, qd),
+            bound=to_decimal(cert.max_bound_violation, qd),
+            minrc=None if cert.min_reduced_cost is None else to_decimal(cert.min_reduced_cost, cd),
+            ok=cert.ok,
+            short=to_decimal(shortage_units(inst, outcome.flow), qd),
+            spare=to_decimal(spare_units(inst, outcome.flow), qd),
+        )
+    row = conn.execute(
+        text(
+            "INSERT INTO solve_run (kind, period_id, first_period_id, last_period_id, batch_id, "
+            "input_fingerprint, status, message, finished_at, cost_decimals, quantity_decimals, "
+            "solver_seconds, total_seconds, primal_cost, dual_objective, duality_gap, "
+            "max_conservation_violation, max_bound_violation, min_reduced_cost, certificate_ok, "
+            "shortage_units, spare_units, node_count, arc_count) VALUES "
+            "(:kind, :period_id, :first, :last, :batch, :fp, :status, :message, clock_timestamp(), "
+            ":cd, :qd, :solver, :total, :primal, :dual, :gap, :cons, :bound, :minrc, :ok, "
+            ":short, :spare, :nodes, :arcs) RETURNING id"
+        ),
+        values,
+    ).one()
+    return int(row[0])
+
+
+def store_results(
+    conn: Connection,
+    run_id: int,
+    inst: Instance,
+    outcome: Outcome,
+    scaling: Scaling,
+    period_ids: np.ndarray,
+    site_ids: np.ndarray,
+    lane_ids: np.ndarray,
+    site_kind: np.ndarray,
+    lane_present: np.ndarray | None = None,
+) -> None:
+    """COPY the flows per lane, prices per site and stock per site of an optimal outcome.
+
+    Parameters
+    ----------
+    period_ids : database ids of the instance's periods, in order.
+    site_ids : database ids of the sites (instance site index -> id).
+    lane_ids : database ids of the lanes (instance lane index -> id).
+    site_kind : :class:`SiteKind` code per site.
+    lane_present : bool array (period, lane), optional
+        Which lanes exist in which period (a horizon's periods may differ);
+        all of them by default.
+    """
+    cd, qd = scaling.cost_decimals, scaling.quantity_decimals
+    flow, ranges, reduced, cap_value = outcome.flow, outcome.ranges, outcome.reduced, outcome.capacity_value
+    run = str(run_id)
+
+    # Flows, reduced costs and capacity values of every lane of every period.
+    n_periods, n_sites = inst.site_node.shape
+    if lane_present is None:
+        lane_present = np.ones((n_periods, len(lane_ids)), dtype=bool)
+    t_idx, l_idx = np.nonzero(lane_present)
+    arcs = inst.lane_arc[t_idx, l_idx]
+    lane_db = np.asarray(lane_ids)[l_idx]
+    period_db = np.asarray(period_ids)[t_idx]
+    binding = (~inst.unlimited[arcs]) & (flow[arcs] >= inst.upper[arcs])
+    m = arcs.shape[0]
+    _copy_rows(
+        conn,
+        "run_flow",
+        ["run_id", "period_id", "lane_id", "flow", "reduced_cost", "capacity_value"],
+        [
+            [run] * m,
+            list(map(str, period_db.tolist())),
+            list(map(str, lane_db.tolist())),
+            decimal_text(flow[arcs], qd),
+            decimal_text(reduced[arcs], cd),
+            _with_nulls(decimal_text(cap_value[arcs], cd), binding),
+        ],
+    )
+
+    # Prices, ranges and per-site figures for every site of every period.
+    nodes = inst.site_node.reshape(-1)
+    site_index = np.tile(np.arange(n_sites), n_periods)
+    period_index = np.repeat(np.arange(n_periods), n_sites)
+    throughput_flow = _per_site(inst, flow, ArcKind.THROUGHPUT, n_periods, n_sites)
+    has_throughput = _per_site(inst, np.ones_like(flow), ArcKind.THROUGHPUT, n_periods, n_sites) > 0
+    tcap = _per_site(inst, np.where(inst.unlimited, 0, 1), ArcKind.THROUGHPUT, n_periods, n_sites) > 0
+    tvalue = _per_site(inst, cap_value, ArcKind.THROUGHPUT, n_periods, n_sites)
+    shortage = _per_site(inst, flow, ArcKind.SHORTAGE, n_periods, n_sites)
+    spare = _per_site(inst, flow, ArcKind.TO_SPARE, n_periods, n_sites)
+    kind = site_kind[site_index]
+    is_customer = kind == SiteKind.CUSTOMER
+    is_plant = kind == SiteKind.PLANT
+    has_high = ranges.has_high[nodes]
+    has_low = ranges.has_low[nodes]
+    k = nodes.shape[0]
+    _copy_rows(
+        conn,
+        "run_site_price",
+        [
+            "run_id", "period_id", "site_id", "price", "price_low", "price_high", "low_reason",
+            "high_reason", "high_units", "throughput_flow", "throughput_value", "shortage", "spare",
+        ],
+        [
+            [run] * k,
+            list(map(str, np.asarray(period_ids)[period_index].tolist())),
+            list(map(str, np.asarray(site_ids)[site_index].tolist())),
+            decimal_text(ranges.price[nodes], cd),
+            _with_nulls(decimal_text(ranges.low[nodes], cd), has_low),
+            _with_nulls(decimal_text(ranges.high[nodes], cd), has_high),
+            _reasons(~has_low, LOW_REASON, k),
+            _reasons(~has_high, HIGH_REASON, k),
+            _with_nulls(_units_text(ranges.high_units[nodes], qd), has_high),
+            _with_nulls(decimal_text(throughput_flow, qd), has_throughput),
+            _with_nulls(decimal_text(tvalue, cd), has_throughput & tcap),
+            _with_nulls(decimal_text(shortage, qd), is_customer),
+            _with_nulls(decimal_text(spare, qd), is_plant),
+        ],
+    )
+
+    # Stock carried out of each period (linked horizons).
+    stock_arcs = np.flatnonzero(inst.arc_kind == ArcKind.STOCK)
+    if stock_arcs.shape[0]:
+        capped = ~inst.unlimited[stock_arcs]
+        full = capped & (flow[stock_arcs] >= inst.upper[stock_arcs])
+        s = stock_arcs.shape[0]
+        _copy_rows(
+            conn,
+            "run_stock",
+            ["run_id", "period_id", "site_id", "stock", "holding_cost", "storage_value"],
+            [
+                [run] * s,
+                list(map(str, np.asarray(period_ids)[inst.arc_period[stock_arcs]].tolist())),
+                list(map(str, np.asarray(site_ids)[inst.arc_ref[stock_arcs]].tolist())),
+                decimal_text(flow[stock_arcs], qd),
+                decimal_text(inst.cost[stock_arcs], cd),
+                _with_nulls(decimal_text(cap_value[stock_arcs], cd), full),
+            ],
+        )
+
+
+HIGH_REASON = (
+    "no spare route into this site: all supply is in use or every route to it is at capacity, "
+    "so one more unit cannot be had at any cost"
+)
+LOW_REASON = (
+    "no route takes a unit from this site back to spare supply: nothing flows into it that "
+    "could be cut and no lane out of it has room"
+)
+
+
+def _reasons(missing: np.ndarray, reason: str, k: int) -> list[str]:
+    out = np.full(k, NULL, dtype=object)
+    out[missing] = reason
+    return out.tolist()
+
+
+def _units_text(units: np.ndarray, qd: int) -> list[str]:
+    # An unlimited bottleneck means the route has no capacity limit at all.
+    from planner.duals import UNLIMITED
+
+    arr = np.array(decimal_text(np.where(units == UNLIMITED, 0, units), qd), dtype=object)
+    arr[units == UNLIMITED] = "Infinity"
+    return arr.tolist()
+
+
+def _per_site(inst: Instance, values: np.ndarray, kind: ArcKind, n_periods: int, n_sites: int) -> np.ndarray:
+    """Sum ``values`` over the arcs of ``kind`` into a (period, site) grid, flattened."""
+    sel = np.flatnonzero(inst.arc_kind == kind)
+    grid = np.zeros(n_periods * n_sites, dtype=np.int64)
+    if sel.shape[0]:
+        np.add.at(grid, inst.arc_period[sel] * n_sites + inst.arc_ref[sel], np.asarray(values)[sel])
+    return grid
