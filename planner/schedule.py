@@ -1,0 +1,207 @@
+"""Many weeks at once: parallel solves, and cron re-solves that never double-solve.
+
+``solve_many`` spreads independent weeks over worker processes; each week's
+run is committed by its worker as soon as it finishes, and one failing week
+does not stop the others.
+
+``resolve`` solves exactly the weeks whose current snapshot differs from the
+one their latest successful run used (the run's input fingerprint). A
+PostgreSQL advisory lock per week, taken with ``pg_try_advisory_lock`` and
+followed by a fresh staleness check, guarantees that several processes, on one
+machine or many, never solve the same week twice.
+"""
+
+from __future__ import annotations
+
+import os
+from concurrent.futures import ProcessPoolExecutor, as_completed
+from dataclasses import dataclass
+from typing import Callable, Iterable
+
+from sqlalchemy import Connection, Engine, text
+
+from planner.errors import PlannerError
+from planner.runs import RunSummary, solve_period
+from planner.snapshot import Scaling, current_batch, run_fingerprint
+
+#: First key of the two-key advisory locks the planner takes (ASCII "PLAN").
+LOCK_NAMESPACE = 0x504C414E
+
+
+@dataclass(frozen=True)
+class WeekOutcome:
+    """One week of a many-week command: a run, or why there is none."""
+
+    period: str
+    summary: RunSummary | None
+    note: str = ""
+
+    @property
+    def ok(self) -> bool:
+        return self.summary is not None and self.summary.ok
+
+
+def _solve_in_worker(url: str, period: str, scaling: Scaling) -> RunSummary:
+    from planner.db import get_engine
+
+    engine = get_engine(url)
+    try:
+        return solve_period(engine, period, scaling)
+    finally:
+        engine.dispose()
+
+
+def solve_many(
+    url: str,
+    periods: Iterable[str],
+    scaling: Scaling = Scaling(),
+    *,
+    workers: int | None = None,
+    on_done: Callable[[WeekOutcome], None] | None = None,
+) -> list[WeekOutcome]:
+    """Solve independent weeks in parallel worker processes.
+
+    Parameters
+    ----------
+    url : str
+        Database URL the workers connect to.
+    periods : iterable of str
+    scaling : Scaling
+    workers : int, optional
+        Worker processes (default: the number of CPU cores, at most the weeks).
+    on_done : callable, optional
+        Called in the parent with each week's outcome as it finishes (progress).
+
+    Returns
+    -------
+    list of WeekOutcome, in the order of ``periods``.
+    """
+    periods = list(periods)
+    workers = max(1, min(workers or os.cpu_count() or 1, len(periods)))
+    outcomes: dict[str, WeekOutcome] = {}
+    if workers == 1:
+        from planner.db import get_engine
+
+        engine = get_engine(url)
+        for period in periods:
+            outcomes[period] = _guarded(lambda: solve_period(engine, period, scaling), period)
+            if on_done:
+                on_done(outcomes[period])
+        return [outcomes[p] for p in periods]
+    with ProcessPoolExecutor(max_workers=workers) as pool:
+        futures = {pool.submit(_solve_in_worker, url, p, scaling): p for p in periods}
+        for future in as_completed(futures):
+            period = futures[future]
+            outcomes[period] = _guarded(future.result, period)
+            if on_done:
+                on_done(outcomes[period])
+    return [outcomes[p] for p in periods]
+
+
+def _guarded(call: Callable[[], RunSummary], period: str) -> WeekOutcome:
+    # A week that cannot even be read (no snapshot, a figure beyond the chosen
+    # precision) is reported and the other weeks go on.
+    try:
+        return WeekOutcome(period, call())
+    except PlannerError as err:
+        return WeekOutcome(period, None, str(err))
+
+
+def is_stale(conn: Connection, period: str, scaling: Scaling) -> tuple[bool, str]:
+    """Whether ``period`` needs a solve, and why (one line).
+
+    A week is stale when its latest optimal run used another input
+    fingerprint, or it has none. A week whose current input already ended
+    infeasible or unbounded is not stale: solving the same input again gives
+    the same verdict.
+    """
+    _, _, snapshot_fp = current_batch(conn, period)
+    fingerprint = run_fingerprint(snapshot_fp, scaling)
+    row = conn.execute(
+        text(
+            "SELECT r.id, r.status, r.input_fingerprint FROM solve_run r JOIN period p "
+            "ON p.id = r.period_id WHERE p.code = :period AND r.kind = 'week' "
+            "AND (r.status = 'optimal' OR (r.input_fingerprint = :fp "
+            "AND r.status IN ('infeasible', 'unbounded'))) "
+            "ORDER BY r.finished_at DESC, r.id DESC LIMIT 1"
+        ),
+        {"period": period, "fp": fingerprint},
+    ).first()
+    if row is None:
+        return True, "never solved"
+    if row.input_fingerprint != fingerprint:
+        return True, f"input changed since run {row.id}"
+    if row.status != "optimal":
+        return False, f"input unchanged since run {row.id}, which was {row.status}"
+    return False, f"up to date (run {row.id})"
+
+
+def stale_periods(engine: Engine, scaling: Scaling = Scaling()) -> list[tuple[str, str]]:
+    """``(period, reason)`` of every loaded week that ``resolve`` would solve."""
+    from planner.snapshot import loaded_periods
+
+    with engine.connect() as conn:
+        out = []
+        for period in loaded_periods(conn):
+            stale, reason = is_stale(conn, period, scaling)
+            if stale:
+                out.append((period, reason))
+        return out
+
+
+def resolve(
+    engine: Engine,
+    scaling: Scaling = Scaling(),
+    *,
+    log: Callable[[str], None] = print,
+) -> list[WeekOutcome]:
+    """Solve every stale week exactly once, sharing the work with other processes.
+
+    For each stale week: take its advisory lock without waiting (another
+    process holding it is solving that week: skip it), check again that it is
+    still stale (another process may have just finished it), solve, commit,
+    release. Logs one line per week.
+
+    Returns
+    -------
+    list of WeekOutcome
+        Only the weeks this process solved or tried to.
+    """
+    from planner.snapshot import loaded_periods
+
+    with engine.connect() as conn:
+        weeks = [(p, *is_stale(conn, p, scaling)) for p in loaded_periods(conn)]
+    done: list[WeekOutcome] = []
+    for period, stale, why in weeks:
+        if not stale:
+            log(f"{period} skipped: {why}")
+            continue
+        with engine.connect() as lock_conn:
+            period_id = current_batch(lock_conn, period)[0]
+            got = lock_conn.execute(
+                text("SELECT pg_try_advisory_lock(:ns, :id)"), {"ns": LOCK_NAMESPACE, "id": period_id}
+            ).scalar_one()
+            lock_conn.commit()
+            if not got:
+                log(f"{period} skipped: being solved by another process")
+                continue
+            try:
+                stale, why = is_stale(lock_conn, period, scaling)
+                lock_conn.commit()
+                if not stale:
+                    log(f"{period} skipped: {why}")
+                    continue
+                outcome = _guarded(lambda: solve_period(engine, period, scaling), period)
+                done.append(outcome)
+                s = outcome.summary
+                if s is None:
+                    log(f"{period} failed: {outcome.note}")
+                else:
+                    cost = "-" if s.cost is None else f"{s.cost:.2f}"
+                    log(f"{period} {s.status} run {s.run_id} cost {cost} ({why}) {s.seconds['total']:.2f}s")
+            finally:
+                lock_conn.execute(
+                    text("SELECT pg_advisory_unlock(:ns, :id)"), {"ns": LOCK_NAMESPACE, "id": period_id}
+                )
+                lock_conn.commit()
+    return done
