@@ -305,5 +305,14 @@ def _psql_target(masked: str) -> str:
     return "'" + masked.replace("postgresql+psycopg://", "postgresql://") + "'"
 
 
+def _register_report_commands() -> None:
+    # The reporting commands live in their own module (planner.cli_report).
+    from planner import cli_report
+
+    cli_report.register(app, console=console, err_console=err_console, engine=_engine, fail=_fail)
+
+
+_register_report_commands()
+
 if __name__ == "__main__":
     app()
