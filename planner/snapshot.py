@@ -16,7 +16,7 @@ import pandas as pd
 from sqlalchemy import Connection, text
 
 from planner.errors import PlannerError
-from planner.instance import NONE, SiteKind, WeekData
+from planner.instance import INT64_MAX, NONE, SiteKind, WeekData
 
 KIND_CODES = {"plant": SiteKind.PLANT, "warehouse": SiteKind.WAREHOUSE, "customer": SiteKind.CUSTOMER}
 
@@ -152,12 +152,26 @@ def _check_precision(conn: Connection, period_id: int, batch_id: int, scaling: S
             ),
             {"b": batch_id, "p": period_id, "s": scale},
         ).first()
+        decimals = scaling.quantity_decimals if scale_attr == "quantity_scale" else scaling.cost_decimals
+        option = "--quantity-decimals" if scale_attr == "quantity_scale" else "--cost-decimals"
         if row is not None:
-            decimals = scaling.quantity_decimals if scale_attr == "quantity_scale" else scaling.cost_decimals
-            option = "--quantity-decimals" if scale_attr == "quantity_scale" else "--cost-decimals"
             problems.append(
                 f"{file} column {column}: value {row[1]} has more than {decimals} decimals; "
                 f"solve with a larger {option}"
+            )
+        # A scaled figure beyond bigint would make the casts below fail inside PostgreSQL.
+        huge = conn.execute(
+            text(
+                f"SELECT {column}::text FROM {table} WHERE batch_id = :b{period_filter} "
+                f"AND abs({column} * :s) > :limit LIMIT 1"
+            ),
+            {"b": batch_id, "p": period_id, "s": scale, "limit": INT64_MAX},
+        ).first()
+        if huge is not None:
+            advice = f"reduce the figure or solve with a smaller {option}" if decimals else "reduce the figure"
+            problems.append(
+                f"{file} column {column}: value {huge[0]} does not fit 64-bit integers at "
+                f"{decimals} decimals; {advice}"
             )
     if problems:
         raise PlannerError("; ".join(problems))
