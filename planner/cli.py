@@ -7,12 +7,13 @@ result with rich. Exit codes: 0 success, 1 a run did not end optimal,
 
 from __future__ import annotations
 
+import sys
 from pathlib import Path
 from typing import Optional
 
 import typer
 from rich.console import Console
-from rich.table import Table
+from rich.table import Column, Table
 
 from planner.errors import PlannerError
 
@@ -22,8 +23,9 @@ app = typer.Typer(
     add_completion=False,
     pretty_exceptions_enable=False,
 )
-console = Console()
-err_console = Console(stderr=True)
+# Piped output (cron logs, scripts) gets a fixed width wide enough for the tables.
+console = Console(width=None if sys.stdout.isatty() else 132)
+err_console = Console(stderr=True, width=None if sys.stderr.isatty() else 132)
 
 DB_HELP = "PostgreSQL URL (default: $PLANNER_DATABASE_URL, else the embedded server)."
 COST_DECIMALS = typer.Option(4, "--cost-decimals", min=0, max=12, help="Decimal places kept for unit costs.")
@@ -74,7 +76,7 @@ def load(
         result = load_folder(_engine(database_url), folder)
     except PlannerError as err:
         _fail(err)
-    console.print(result.message, highlight=False)
+    console.print(result.message, highlight=False, soft_wrap=True)
 
 
 @app.command()
@@ -164,7 +166,8 @@ def solve(
 
 
 def _summary_table(summaries, title) -> None:
-    table = Table("period", "run", "status", "cost", "shortage", "certificate", "seconds", title=title)
+    table = Table("run", "status", "cost", "shortage", "certificate", "seconds", title=title)
+    table.columns.insert(0, Column("period", no_wrap=True))
     for s in summaries:
         table.add_row(
             s.period, str(s.run_id), s.status, _money(s.cost),
@@ -281,8 +284,8 @@ def demo(
         report = run_demo(engine, target)
     except PlannerError as err:
         _fail(err)
-    console.print(f"demo network written to {report.folder}", highlight=False)
-    console.print(report.load_message, highlight=False)
+    console.print(f"demo network written to {report.folder}", highlight=False, soft_wrap=True)
+    console.print(report.load_message, highlight=False, soft_wrap=True)
     weeks = Table("week", "status", "cost", "shortage", "certificate", title="Cost of each week")
     for s in report.runs:
         weeks.add_row(s.period, s.status, _money(s.cost), f"{s.shortage or 0:,}", _cert(s.certificate_ok))
@@ -292,7 +295,7 @@ def demo(
         movers.add_row(m["site"], m["kind"], m["region"] or "", _money(m["low"]), _money(m["high"]), _money(m["moved"]))
     console.print(movers)
     console.print(
-        "open the database with psql:\n  psql " + _psql_target(db.masked_url(url)) +
+        "open the database with psql:\n  psql " + _psql_target(url) +
         "\nthen for example: SELECT * FROM site_price_history WHERE site = "
         f"'{report.movers[0]['site'] if report.movers else 'C0001'}' ORDER BY period;",
         highlight=False, soft_wrap=True,
@@ -301,8 +304,13 @@ def demo(
         raise typer.Exit(1)
 
 
-def _psql_target(masked: str) -> str:
-    return "'" + masked.replace("postgresql+psycopg://", "postgresql://") + "'"
+def _psql_target(url: str) -> str:
+    """A libpq URL for psql, without the password (psql asks for it, or reads ~/.pgpass)."""
+    from sqlalchemy.engine import make_url
+
+    # URL.set() treats None as "keep"; URL is a named tuple, so _replace drops it.
+    bare = make_url(url)._replace(password=None).set(drivername="postgresql")
+    return "'" + bare.render_as_string(hide_password=False) + "'"
 
 
 def _register_report_commands() -> None:

@@ -125,54 +125,78 @@ def current_batch(conn: Connection, period: str, batch_id: int | None = None) ->
     return int(row[0]), int(row[1]), str(row[2])
 
 
-# (table, column, scale attribute, key SQL, CSV file, human name)
-_SCALED = [
-    ("site_version", "throughput_capacity", "quantity_scale", "site_id", "sites.csv"),
-    ("site_version", "handling_cost", "unit_cost_scale", "site_id", "sites.csv"),
-    ("site_version", "holding_cost", "unit_cost_scale", "site_id", "sites.csv"),
-    ("site_version", "storage_capacity", "quantity_scale", "site_id", "sites.csv"),
-    ("supply", "quantity", "quantity_scale", "site_id", "supply.csv"),
-    ("demand", "quantity", "quantity_scale", "site_id", "demand.csv"),
-    ("demand", "shortage_penalty", "unit_cost_scale", "site_id", "demand.csv"),
-    ("lane_rate", "unit_cost", "unit_cost_scale", "lane_id", "lanes.csv"),
-    ("lane_rate", "capacity", "quantity_scale", "lane_id", "lanes.csv"),
-    ("lane_rate", "min_quantity", "quantity_scale", "lane_id", "lanes.csv"),
-]
+# The scaled figures of each table: column -> (scale attribute, CSV file).
+_SCALED = {
+    "site_version": {
+        "throughput_capacity": "quantity_scale",
+        "handling_cost": "unit_cost_scale",
+        "holding_cost": "unit_cost_scale",
+        "storage_capacity": "quantity_scale",
+    },
+    "supply": {"quantity": "quantity_scale"},
+    "demand": {"quantity": "quantity_scale", "shortage_penalty": "unit_cost_scale"},
+    "lane_rate": {
+        "unit_cost": "unit_cost_scale",
+        "capacity": "quantity_scale",
+        "min_quantity": "quantity_scale",
+    },
+}
+_FILES = {"site_version": "sites.csv", "supply": "supply.csv", "demand": "demand.csv", "lane_rate": "lanes.csv"}
+# How each table names the row a bad figure is on.
+_ROW_NAME = {
+    "site_version": "(SELECT code FROM site WHERE id = t.site_id)",
+    "supply": "(SELECT code FROM site WHERE id = t.site_id)",
+    "demand": "(SELECT code FROM site WHERE id = t.site_id)",
+    "lane_rate": "(SELECT o.code || '->' || d.code || CASE WHEN l.mode = '' THEN '' ELSE ' ' || l.mode END "
+    "FROM lane l JOIN site o ON o.id = l.origin_id JOIN site d ON d.id = l.destination_id "
+    "WHERE l.id = t.lane_id)",
+}
 
 
 def _check_precision(conn: Connection, period_id: int, batch_id: int, scaling: Scaling) -> None:
+    """Refuse figures with more decimals than the precision, or beyond 64 bits once scaled.
+
+    One scan per table; the scaled casts of :func:`read_snapshot` would
+    otherwise round or fail inside PostgreSQL.
+    """
     problems = []
-    for table, column, scale_attr, key, file in _SCALED:
-        scale = getattr(scaling, scale_attr)
+    for table, columns in _SCALED.items():
         period_filter = "" if table == "site_version" else " AND period_id = :p"
+        picks = []
+        for column, scale_attr in columns.items():
+            s = getattr(scaling, scale_attr)
+            picks.append(
+                f"(array_agg({column}::text || chr(9) || {_ROW_NAME[table]}) "
+                f"FILTER (WHERE {column} * {s} <> trunc({column} * {s})))[1]"
+            )
+            picks.append(
+                f"(array_agg({column}::text || chr(9) || {_ROW_NAME[table]}) "
+                f"FILTER (WHERE abs({column} * {s}) > :limit))[1]"
+            )
         row = conn.execute(
-            text(
-                f"SELECT {key}, {column}::text FROM {table} WHERE batch_id = :b{period_filter} "
-                f"AND {column} * :s <> trunc({column} * :s) LIMIT 1"
-            ),
-            {"b": batch_id, "p": period_id, "s": scale},
-        ).first()
-        decimals = scaling.quantity_decimals if scale_attr == "quantity_scale" else scaling.cost_decimals
-        option = "--quantity-decimals" if scale_attr == "quantity_scale" else "--cost-decimals"
-        if row is not None:
-            problems.append(
-                f"{file} column {column}: value {row[1]} has more than {decimals} decimals; "
-                f"solve with a larger {option}"
-            )
-        # A scaled figure beyond bigint would make the casts below fail inside PostgreSQL.
-        huge = conn.execute(
-            text(
-                f"SELECT {column}::text FROM {table} WHERE batch_id = :b{period_filter} "
-                f"AND abs({column} * :s) > :limit LIMIT 1"
-            ),
-            {"b": batch_id, "p": period_id, "s": scale, "limit": INT64_MAX},
-        ).first()
-        if huge is not None:
-            advice = f"reduce the figure or solve with a smaller {option}" if decimals else "reduce the figure"
-            problems.append(
-                f"{file} column {column}: value {huge[0]} does not fit 64-bit integers at "
-                f"{decimals} decimals; {advice}"
-            )
+            text(f"SELECT {', '.join(picks)} FROM {table} t WHERE batch_id = :b{period_filter}"),
+            {"b": batch_id, "p": period_id, "limit": INT64_MAX},
+        ).one()
+        for i, (column, scale_attr) in enumerate(columns.items()):
+            quantity = scale_attr == "quantity_scale"
+            decimals = scaling.quantity_decimals if quantity else scaling.cost_decimals
+            option = "--quantity-decimals" if quantity else "--cost-decimals"
+            inexact, huge = row[2 * i], row[2 * i + 1]
+            where = f"{_FILES[table]} column {column}"
+            what = "lane" if table == "lane_rate" else "site"
+            if inexact is not None:
+                value, name = inexact.split("\t", 1)
+                problems.append(
+                    f"{where}: value {value} has more than {decimals} decimals ({what} {name}); "
+                    f"solve with a larger {option}"
+                )
+            if huge is not None:
+                value, name = huge.split("\t", 1)
+                advice = f"reduce the figure or solve with a smaller {option}" if decimals else "reduce the figure"
+                problems.append(
+                    f"{where}: value {value} does not fit 64-bit integers at {decimals} decimals "
+                    f"({what} {name}); {advice}"
+                )
     if problems:
         raise PlannerError("; ".join(problems))
 

@@ -189,7 +189,8 @@ def store_results(
     period_index = np.repeat(np.arange(n_periods), n_sites)
     throughput_flow = _per_site(inst, flow, ArcKind.THROUGHPUT, n_periods, n_sites)
     has_throughput = _per_site(inst, np.ones_like(flow), ArcKind.THROUGHPUT, n_periods, n_sites) > 0
-    tcap = _per_site(inst, np.where(inst.unlimited, 0, 1), ArcKind.THROUGHPUT, n_periods, n_sites) > 0
+    at_capacity = (~inst.unlimited) & (flow >= inst.upper)
+    tfull = _per_site(inst, at_capacity.astype(np.int64), ArcKind.THROUGHPUT, n_periods, n_sites) > 0
     tvalue = _per_site(inst, cap_value, ArcKind.THROUGHPUT, n_periods, n_sites)
     shortage = _per_site(inst, flow, ArcKind.SHORTAGE, n_periods, n_sites)
     spare = _per_site(inst, flow, ArcKind.TO_SPARE, n_periods, n_sites)
@@ -217,7 +218,7 @@ def store_results(
             _reasons(~has_high, HIGH_REASON, k),
             _with_nulls(_units_text(ranges.high_units[nodes], qd), has_high),
             _with_nulls(decimal_text(throughput_flow, qd), has_throughput),
-            _with_nulls(decimal_text(tvalue, cd), has_throughput & tcap),
+            _with_nulls(decimal_text(tvalue, cd), tfull),
             _with_nulls(decimal_text(shortage, qd), is_customer),
             _with_nulls(decimal_text(spare, qd), is_plant),
         ],
