@@ -156,42 +156,47 @@ _ROW_NAME = {
 def _check_precision(conn: Connection, period_id: int, batch_id: int, scaling: Scaling) -> None:
     """Refuse figures with more decimals than the precision, or beyond 64 bits once scaled.
 
-    One scan per table; the scaled casts of :func:`read_snapshot` would
-    otherwise round or fail inside PostgreSQL.
+    One cheap scan per table finds whether any figure is off; only then is
+    the offending row looked up by name. The scaled casts of
+    :func:`read_snapshot` would otherwise round or fail inside PostgreSQL.
     """
     problems = []
+    params = {"b": batch_id, "p": period_id, "limit": INT64_MAX}
     for table, columns in _SCALED.items():
         period_filter = "" if table == "site_version" else " AND period_id = :p"
-        picks = []
+        tests = []
         for column, scale_attr in columns.items():
             s = getattr(scaling, scale_attr)
-            picks.append(
-                f"(array_agg({column}::text || chr(9) || {_ROW_NAME[table]}) "
-                f"FILTER (WHERE {column} * {s} <> trunc({column} * {s})))[1]"
-            )
-            picks.append(
-                f"(array_agg({column}::text || chr(9) || {_ROW_NAME[table]}) "
-                f"FILTER (WHERE abs({column} * {s}) > :limit))[1]"
-            )
-        row = conn.execute(
-            text(f"SELECT {', '.join(picks)} FROM {table} t WHERE batch_id = :b{period_filter}"),
-            {"b": batch_id, "p": period_id, "limit": INT64_MAX},
+            tests.append((column, scale_attr, f"{column} * {s} <> trunc({column} * {s})", "inexact"))
+            tests.append((column, scale_attr, f"abs({column} * {s}) > :limit", "huge"))
+        flags = conn.execute(
+            text(
+                "SELECT " + ", ".join(f"coalesce(bool_or({cond}), false)" for _, _, cond, _ in tests)
+                + f" FROM {table} t WHERE batch_id = :b{period_filter}"
+            ),
+            params,
         ).one()
-        for i, (column, scale_attr) in enumerate(columns.items()):
+        for (column, scale_attr, cond, problem), flagged in zip(tests, flags):
+            if not flagged:
+                continue
+            value, name = conn.execute(
+                text(
+                    f"SELECT {column}::text, {_ROW_NAME[table]} FROM {table} t "
+                    f"WHERE batch_id = :b{period_filter} AND {cond} LIMIT 1"
+                ),
+                params,
+            ).one()
             quantity = scale_attr == "quantity_scale"
             decimals = scaling.quantity_decimals if quantity else scaling.cost_decimals
             option = "--quantity-decimals" if quantity else "--cost-decimals"
-            inexact, huge = row[2 * i], row[2 * i + 1]
             where = f"{_FILES[table]} column {column}"
             what = "lane" if table == "lane_rate" else "site"
-            if inexact is not None:
-                value, name = inexact.split("\t", 1)
+            if problem == "inexact":
                 problems.append(
                     f"{where}: value {value} has more than {decimals} decimals ({what} {name}); "
                     f"solve with a larger {option}"
                 )
-            if huge is not None:
-                value, name = huge.split("\t", 1)
+            else:
                 advice = f"reduce the figure or solve with a smaller {option}" if decimals else "reduce the figure"
                 problems.append(
                     f"{where}: value {value} does not fit 64-bit integers at {decimals} decimals "

@@ -1,0 +1,240 @@
+"""Many weeks through the command line: ``planner solve --all/--from/--to`` and ``planner resolve``.
+
+Each test loads CSV folders into a fresh database and runs the real command in
+subprocesses, as cron would (quick follow-up commands that start no worker
+processes run in-process with typer's CliRunner), then counts the stored runs
+with SQL. The
+concurrency test starts two ``planner resolve`` processes at the same moment
+on the same PostgreSQL database and checks that every stale week was solved
+exactly once between them.
+"""
+
+from __future__ import annotations
+
+import re
+import subprocess
+import sys
+from collections import Counter
+
+import sqlalchemy as sa
+from typer.testing import CliRunner
+
+from planner.cli import app
+from planner.generate import benchmark_network
+from planner.generate import write_folder as write_network
+from planner.schedule import LOCK_NAMESPACE
+
+PLANNER = [sys.executable, "-m", "planner.cli"]
+
+#: A resolve log line: the week code, then what happened to it.
+LOG_LINE = re.compile(r"^(\d{4}-W\d{2}) (optimal|infeasible|unbounded|failed|skipped:)")
+
+# Week 42 is infeasible: C3 has no shortage penalty and no lane leads to it.
+INFEASIBLE_WEEK = {
+    "supply.csv": "2026-W42,P1,60\n",
+    "demand.csv": "2026-W42,C1,20,90\n2026-W42,C3,50,\n",
+    "lanes.csv": "2026-W42,P1,W1,road,2.50,80,\n2026-W42,W1,C1,,1,,\n",
+}
+
+
+def planner(*args: str) -> subprocess.CompletedProcess:
+    """Run the real ``planner`` command in a subprocess (database from PLANNER_DATABASE_URL)."""
+    return subprocess.run([*PLANNER, *args], capture_output=True, text=True, timeout=120)
+
+
+def invoke(*args: str):
+    """Run the ``planner`` command in-process (for commands that start no workers)."""
+    return CliRunner().invoke(app, list(args))
+
+
+def load(folder) -> None:
+    result = invoke("load", str(folder))
+    assert result.exit_code == 0, result.output
+
+
+def with_infeasible_week(files: dict[str, str]) -> dict[str, str]:
+    return {name: text + INFEASIBLE_WEEK.get(name, "") for name, text in files.items()}
+
+
+def week_runs(engine: sa.Engine) -> list[sa.Row]:
+    with engine.connect() as conn:
+        return conn.execute(
+            sa.text(
+                "SELECT r.id, p.code AS period, r.status, r.batch_id, r.certificate_ok "
+                "FROM solve_run r JOIN period p ON p.id = r.period_id "
+                "WHERE r.kind = 'week' ORDER BY r.id"
+            )
+        ).all()
+
+
+def log_lines(stdout: str) -> dict[str, str]:
+    """Week code -> its one log line; fails on a second line for the same week."""
+    lines: dict[str, str] = {}
+    for line in stdout.splitlines():
+        match = LOG_LINE.match(line)
+        assert match, f"unexpected log line {line!r}"
+        assert match[1] not in lines, f"two log lines for {match[1]}"
+        lines[match[1]] = line
+    return lines
+
+
+def solved(lines: dict[str, str]) -> set[str]:
+    return {week for week, line in lines.items() if " skipped: " not in line}
+
+
+# --------------------------------------------------------------------------- solve --all
+
+
+def test_solve_all_stores_every_week_despite_one_infeasible(
+    engine: sa.Engine, write_folder, network_files
+) -> None:
+    load(write_folder(with_infeasible_week(network_files)))
+    result = planner("solve", "--all", "--workers", "2")
+    assert result.returncode == 1
+    assert "Traceback" not in result.stderr
+
+    by_week = {r.period: r for r in week_runs(engine)}
+    assert set(by_week) == {"2026-W40", "2026-W41", "2026-W42"}
+    assert len(week_runs(engine)) == 3
+    for week in ("2026-W40", "2026-W41"):
+        assert by_week[week].status == "optimal" and by_week[week].certificate_ok is True
+    assert by_week["2026-W42"].status == "infeasible"
+
+    # The summary table lists every week with its status; the bad week's
+    # diagnosis follows on stderr.
+    table = {line.split()[1]: line for line in result.stdout.splitlines() if "2026-W4" in line}
+    assert set(table) == {"2026-W40", "2026-W41", "2026-W42"}
+    assert "optimal" in table["2026-W40"] and "optimal" in table["2026-W41"]
+    assert "infeasible" in table["2026-W42"]
+    assert "2026-W42: week 2026-W42 is infeasible" in result.stderr
+    assert "C3 (50)" in result.stderr
+
+
+def test_solve_from_to_solves_only_that_range(engine: sa.Engine, write_folder, network_files) -> None:
+    load(write_folder(with_infeasible_week(network_files)))
+    result = planner("solve", "--from", "2026-W41", "--to", "2026-W42", "--workers", "2")
+    assert result.returncode == 1  # week 42 is infeasible
+    assert sorted(r.period for r in week_runs(engine)) == ["2026-W41", "2026-W42"]
+    only_first = invoke("solve", "--to", "2026-W40")
+    assert only_first.exit_code == 0, only_first.output
+    assert Counter(r.period for r in week_runs(engine)) == Counter(
+        {"2026-W40": 1, "2026-W41": 1, "2026-W42": 1}
+    )
+
+
+# --------------------------------------------------------------------------- resolve
+
+
+def test_resolve_solves_exactly_the_weeks_whose_input_changed(
+    engine: sa.Engine, write_folder, network_files
+) -> None:
+    load(write_folder(network_files))
+    first = planner("resolve")
+    assert first.returncode == 0, first.stderr
+    lines = log_lines(first.stdout)
+    assert solved(lines) == {"2026-W40", "2026-W41"}
+    assert "never solved" in lines["2026-W40"]
+    assert [r.status for r in week_runs(engine)] == ["optimal", "optimal"]
+
+    again = planner("resolve")
+    assert again.returncode == 0, again.stderr
+    lines = log_lines(again.stdout)
+    assert set(lines) == {"2026-W40", "2026-W41"} and not solved(lines)
+    assert all("skipped: up to date" in line for line in lines.values())
+    assert len(week_runs(engine)) == 2
+
+    # A new batch: week 40 with identical rows, week 41 with one demand changed.
+    changed = dict(network_files)
+    changed["demand.csv"] = changed["demand.csv"].replace("2026-W41,C1,35,90", "2026-W41,C1,36,90")
+    load(write_folder(changed))
+
+    dry = invoke("resolve", "--dry-run")
+    assert dry.exit_code == 0, dry.output
+    (listed,) = dry.stdout.splitlines()
+    assert listed.startswith("2026-W41 would be solved: input changed since run ")
+    assert len(week_runs(engine)) == 2
+
+    third = planner("resolve")
+    assert third.returncode == 0, third.stderr
+    lines = log_lines(third.stdout)
+    assert solved(lines) == {"2026-W41"}
+    assert "input changed since run" in lines["2026-W41"]
+    runs = week_runs(engine)
+    assert Counter(r.period for r in runs) == Counter({"2026-W40": 1, "2026-W41": 2})
+    assert runs[-1].period == "2026-W41" and runs[-1].batch_id == 2
+
+    quiet = invoke("resolve", "--dry-run")
+    assert quiet.stdout.strip() == "nothing to solve: every loaded week is up to date"
+
+
+def test_resolve_reports_an_infeasible_week_once_and_then_leaves_it(
+    engine: sa.Engine, write_folder, network_files
+) -> None:
+    load(write_folder(with_infeasible_week(network_files)))
+    first = planner("resolve")
+    assert first.returncode == 1
+    assert "Traceback" not in first.stderr
+    lines = log_lines(first.stdout)
+    assert solved(lines) == {"2026-W40", "2026-W41", "2026-W42"}
+    assert lines["2026-W42"].startswith("2026-W42 infeasible run ")
+
+    # Solving the same input again would give the same verdict: cron moves on.
+    second = planner("resolve")
+    assert second.returncode == 0, second.stderr
+    assert "which was infeasible" in log_lines(second.stdout)["2026-W42"]
+    assert len(week_runs(engine)) == 3
+
+
+def test_resolve_skips_a_week_whose_lock_another_session_holds(
+    engine: sa.Engine, write_folder, network_files
+) -> None:
+    load(write_folder(network_files))
+    with engine.connect() as holder:
+        period_id = holder.execute(
+            sa.text("SELECT id FROM period WHERE code = '2026-W41'")
+        ).scalar_one()
+        key = {"ns": LOCK_NAMESPACE, "id": period_id}
+        holder.execute(sa.text("SELECT pg_advisory_lock(:ns, :id)"), key)
+        holder.commit()
+        busy = planner("resolve")
+        holder.execute(sa.text("SELECT pg_advisory_unlock(:ns, :id)"), key)
+        holder.commit()
+    assert busy.returncode == 0, busy.stderr
+    lines = log_lines(busy.stdout)
+    assert solved(lines) == {"2026-W40"}
+    assert lines["2026-W41"] == "2026-W41 skipped: being solved by another process"
+
+    free = invoke("resolve")
+    assert free.exit_code == 0, free.output
+    assert solved(log_lines(free.stdout)) == {"2026-W41"}
+    assert Counter(r.period for r in week_runs(engine)) == Counter({"2026-W40": 1, "2026-W41": 1})
+
+
+def test_two_resolves_started_together_solve_each_week_once(engine: sa.Engine, tmp_path) -> None:
+    frames = benchmark_network(
+        n_plants=10, n_warehouses=40, n_customers=2000, n_lanes=10_000, weeks=6, seed=5
+    )
+    load(write_network(frames, tmp_path / "six-weeks"))
+    weeks = sorted(set(frames.supply["period"]))
+    assert len(weeks) == 6
+
+    processes = [
+        subprocess.Popen(
+            [*PLANNER, "resolve"], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True
+        )
+        for _ in range(2)
+    ]
+    outputs = [p.communicate(timeout=180) for p in processes]
+
+    for process, (stdout, stderr) in zip(processes, outputs):
+        assert process.returncode == 0, stderr
+        assert "Traceback" not in stderr
+        # One line per week in each process: solved, or skipped with the reason.
+        assert set(log_lines(stdout)) == set(weeks)
+    solved_by = [solved(log_lines(stdout)) for stdout, _ in outputs]
+    assert solved_by[0].isdisjoint(solved_by[1])
+    assert solved_by[0] | solved_by[1] == set(weeks)
+
+    runs = week_runs(engine)
+    assert Counter(r.period for r in runs) == Counter({w: 1 for w in weeks})
+    assert all(r.status == "optimal" and r.certificate_ok for r in runs)
