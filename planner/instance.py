@@ -319,7 +319,8 @@ def check_int64(inst: Instance) -> None:
         return
     worst = int(np.argmax(abs_cost * inst.upper))
     drop = int(np.ceil(np.log10(factor)))
-    decimals = int(round(np.log10(inst.cost_scale)))
+    # cost_scale = 10^(cost decimals + quantity decimals); advise on the cost decimals.
+    decimals = int(round(np.log10(inst.cost_scale))) - int(round(np.log10(inst.quantity_scale)))
     kind = ArcKind(int(inst.arc_kind[worst])).name.lower()
     column = {
         "lane": "lanes.csv unit_cost",

@@ -18,7 +18,7 @@ from sqlalchemy import Engine, text
 from planner.errors import PlannerError
 from planner.instance import assemble_instance
 from planner.optimize import FAILED, Outcome, optimize, shortage_units
-from planner.snapshot import Scaling, Snapshot, read_snapshot, run_fingerprint
+from planner.snapshot import Scaling, Snapshot, current_batch, read_snapshot, run_fingerprint
 from planner.store import RunKey, insert_run, store_results, to_decimal
 
 
@@ -95,15 +95,26 @@ def solve_period(engine: Engine, period: str, scaling: Scaling = Scaling()) -> R
     """
     start = time.perf_counter()
     with engine.connect() as conn:
-        snapshot = read_snapshot(conn, period, scaling)
-    key = RunKey(
-        kind="week",
-        period_id=snapshot.period_id,
-        first_period_id=snapshot.period_id,
-        last_period_id=snapshot.period_id,
-        batch_id=snapshot.batch_id,
-        input_fingerprint=run_fingerprint(snapshot.fingerprint, scaling),
-    )
+        period_id, batch_id, snapshot_fp = current_batch(conn, period)
+        key = RunKey(
+            kind="week",
+            period_id=period_id,
+            first_period_id=period_id,
+            last_period_id=period_id,
+            batch_id=batch_id,
+            input_fingerprint=run_fingerprint(snapshot_fp, scaling),
+        )
+        try:
+            snapshot = read_snapshot(conn, period, scaling, batch_id=batch_id)
+        except PlannerError as err:
+            # A figure the chosen precision cannot hold: the attempt is a failed run.
+            snapshot = None
+            failure = Outcome(FAILED, str(err))
+    if snapshot is None:
+        return _store_and_summarise(
+            engine, key, scaling, None, failure, start, label=period,
+            period_ids=None, site_ids=None, lane_ids=None, site_kind=None,
+        )
     try:
         inst, outcome = solve_snapshot(snapshot, scaling)
     except PlannerError as err:

@@ -370,11 +370,13 @@ def test_figure_beyond_int64_once_scaled_is_refused_naming_column_and_lane(
     assert "lanes.csv column unit_cost: value 10000000000000000 does not fit 64-bit integers" in result.stderr
     assert "(lane W1->C1 road)" in result.stderr
     assert "--cost-decimals" in result.stderr
+    (failed,) = runs(engine)
+    assert failed["status"] == "failed" and "does not fit 64-bit integers" in failed["message"]
 
     # At 0 decimals the figure fits, and so do its products: 50 x 10^16 + 130.
     smaller = invoke("solve", "--period", "2026-W40", "--cost-decimals", "0")
     assert smaller.exit_code == 0, smaller.output
-    (run,) = runs(engine)
+    run = runs(engine)[-1]
     assert run["status"] == "optimal" and run["certificate_ok"] is True
     assert run["primal_cost"] == Decimal("500000000000000130")
 

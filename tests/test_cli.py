@@ -206,16 +206,20 @@ def one_lane_files(unit_cost: str = "2", demand: str = "3") -> dict[str, str]:
 def test_a_unit_cost_beyond_the_cost_precision_is_refused_naming_file_column_and_value(engine, write_folder):
     assert invoke("load", str(write_folder(one_lane_files(unit_cost="1.234")))).exit_code == 0
     refused = invoke("solve", "--period", "2026-W30", "--cost-decimals", "2")
-    # No run is stored; the week is reported like any week that did not end optimal.
+    # The attempt is stored as a failed run, like any week that did not end optimal.
     assert refused.exit_code == 1
     assert "lanes.csv column unit_cost: value 1.234 has more than 2 decimals" in refused.stderr
     assert "--cost-decimals" in refused.stderr
-    assert table_counts(engine, ("solve_run",)) == {"solve_run": 0}
+    with engine.connect() as conn:
+        status, message = conn.execute(text("SELECT status, message FROM solve_run")).one()
+    assert status == "failed" and "lanes.csv column unit_cost: value 1.234" in message
 
     enough = invoke("solve", "--period", "2026-W30", "--cost-decimals", "3")
     assert enough.exit_code == 0, enough.output
     with engine.connect() as conn:
-        cost, decimals = conn.execute(text("SELECT primal_cost, cost_decimals FROM solve_run")).one()
+        cost, decimals = conn.execute(
+            text("SELECT primal_cost, cost_decimals FROM solve_run WHERE status = 'optimal'")
+        ).one()
     assert (cost, decimals) == (Decimal("3.702"), 3)
 
 
@@ -229,7 +233,10 @@ def test_fractional_quantities_solve_with_quantity_decimals_and_are_stored_exact
     assert result.exit_code == 0, result.output
     with engine.connect() as conn:
         run = conn.execute(
-            text("SELECT primal_cost, quantity_decimals, spare_units, certificate_ok FROM solve_run")
+            text(
+                "SELECT primal_cost, quantity_decimals, spare_units, certificate_ok FROM solve_run "
+                "WHERE status = 'optimal'"
+            )
         ).one()
         flow = conn.execute(text("SELECT flow FROM run_flow")).scalar_one()
         spare = conn.execute(text("SELECT spare FROM run_site_price WHERE spare IS NOT NULL")).scalar_one()
@@ -249,7 +256,8 @@ def test_a_figure_too_large_for_64_bit_integers_is_refused_without_a_traceback(e
         "lanes.csv column capacity: value 100000000000000000000 does not fit 64-bit integers at 0 decimals"
         in refused.stderr
     )
-    assert table_counts(engine, ("solve_run",)) == {"solve_run": 0}
+    with engine.connect() as conn:
+        assert conn.execute(text("SELECT status FROM solve_run")).scalar_one() == "failed"
 
 
 # --------------------------------------------------------------------------- demo
