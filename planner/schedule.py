@@ -15,10 +15,12 @@ from __future__ import annotations
 
 import os
 from concurrent.futures import ProcessPoolExecutor, as_completed
+from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass
 from typing import Callable, Iterable
 
 from sqlalchemy import Connection, Engine, text
+from sqlalchemy.exc import SQLAlchemyError
 
 from planner.errors import PlannerError
 from planner.runs import RunSummary, solve_period
@@ -83,10 +85,13 @@ def solve_many(
         from planner.db import get_engine
 
         engine = get_engine(url)
-        for period in periods:
-            outcomes[period] = _guarded(lambda: solve_period(engine, period, scaling), period)
-            if on_done:
-                on_done(outcomes[period])
+        try:
+            for period in periods:
+                outcomes[period] = _guarded(lambda: solve_period(engine, period, scaling), period)
+                if on_done:
+                    on_done(outcomes[period])
+        finally:
+            engine.dispose()
         return [outcomes[p] for p in periods]
     with ProcessPoolExecutor(max_workers=workers) as pool:
         futures = {pool.submit(_solve_in_worker, url, p, scaling): p for p in periods}
@@ -99,12 +104,13 @@ def solve_many(
 
 
 def _guarded(call: Callable[[], RunSummary], period: str) -> WeekOutcome:
-    # A week that cannot even be read (no snapshot, a figure beyond the chosen
-    # precision) is reported and the other weeks go on.
+    # A week that cannot be read or stored (no snapshot, a lost connection, a
+    # worker that died) is reported, and the other weeks go on.
     try:
         return WeekOutcome(period, call())
-    except PlannerError as err:
-        return WeekOutcome(period, None, str(err))
+    except (PlannerError, SQLAlchemyError, BrokenProcessPool) as err:
+        note = str(err) if isinstance(err, PlannerError) else f"{type(err).__name__}: {err}"
+        return WeekOutcome(period, None, note)
 
 
 def is_stale(conn: Connection, period: str, scaling: Scaling) -> tuple[bool, str]:

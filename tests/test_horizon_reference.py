@@ -86,7 +86,9 @@ def horizon_lp(weeks: list[WeekData]) -> ReferencePlan:
         for s in range(n_sites):
             if w.supply[s] > 0:
                 eq.append((row(t, s), column(0, 0, w.supply[s]), 1.0))
-            if w.demand[s] > 0 and w.shortage_penalty[s] != NONE:
+            # As in the planner's model: a penalty allows shortage even at zero
+            # demand, so that one more unit needed there can be left short.
+            if w.shortage_penalty[s] != NONE:
                 eq.append((row(t, s), column(w.shortage_penalty[s], 0, None), -1.0))
             if kind[s] == WAREHOUSE and w.throughput_capacity[s] != NONE:
                 ub += [(len(ub_rhs), j, 1.0) for j in shipped_from[s]]
