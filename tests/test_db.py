@@ -149,7 +149,7 @@ def test_embedded_server_is_used_without_a_url(
 
 def test_fresh_database_is_at_head_with_every_table(engine: sa.Engine) -> None:
     with engine.connect() as connection:
-        assert current_revision(connection) == head_revision() == "0002"
+        assert current_revision(connection) == head_revision() == "0003"
         tables = set(sa.inspect(connection).get_table_names())
     assert tables == TABLES | {"alembic_version"}
 
@@ -347,6 +347,8 @@ def test_site_price_history_view_exists_and_is_empty(engine: sa.Engine) -> None:
         "degenerate",
         "price_change",
         "run_id",
+        "x",
+        "y",
     ]
 
 

@@ -1,0 +1,600 @@
+"""Reports on stored runs, read from the reporting views.
+
+The views (created by migration 0003) show the latest optimal week run of every
+period; each has a function ``<view>_of_run(run_id)`` with the same columns for
+any one run:
+
+=====================  =====================================================
+``site_price_history``  price of every site and week, its range, degeneracy
+``lane_flow``           flow, capacity, utilisation, cost and reduced cost
+``binding_capacity``    lanes and warehouses at capacity, ranked by value
+``shortage``            customers left short and the penalty paid
+``run_summary``         cost, dual objective, certificate, timings per run
+=====================  =====================================================
+
+The functions here return pandas DataFrames (exact :class:`~decimal.Decimal`
+numbers, one row per view row) for the command line, the charts, the HTML
+report and Python users. Every query binds its values as parameters.
+:data:`READER_ROLE` is the database role that may read the views and nothing else.
+"""
+
+from __future__ import annotations
+
+import datetime
+import math
+from dataclasses import dataclass, field
+from decimal import Decimal
+
+import pandas as pd
+from sqlalchemy import Connection, Engine, text
+
+from planner.errors import PlannerError
+from planner.periods import parse_week, week_code
+
+__all__ = [
+    "READER_ROLE",
+    "REPORT_SECTIONS",
+    "VIEWS",
+    "WeekReport",
+    "binding_capacities",
+    "cost_breakdown",
+    "format_number",
+    "lane_flows",
+    "network_of_week",
+    "previous_week",
+    "price_moves",
+    "run_summaries",
+    "shortages",
+    "site_prices",
+    "view_source",
+    "week_report",
+]
+
+#: The reporting views, in the order the README documents them.
+VIEWS = ("site_price_history", "lane_flow", "binding_capacity", "shortage", "run_summary")
+#: NOLOGIN role (cluster-wide) allowed to SELECT the views and EXECUTE their functions.
+READER_ROLE = "planner_reader"
+#: Sections of the weekly report, in the order they are shown.
+REPORT_SECTIONS = ("cost", "binding", "moves", "shortages")
+SITE_KINDS = ("plant", "warehouse", "customer")
+
+
+def view_source(view: str, run_id: int | None = None) -> str:
+    """SQL ``FROM`` item of a reporting view, or of its function for one run.
+
+    The run id stays a bound parameter (``:run_id``); only the view name, checked
+    against :data:`VIEWS`, is written into the SQL.
+
+    Parameters
+    ----------
+    view : str
+        One of :data:`VIEWS`.
+    run_id : int, optional
+        A run id: the function ``<view>_of_run`` instead of the view.
+
+    Returns
+    -------
+    str
+
+    Raises
+    ------
+    ValueError
+        If ``view`` is not a reporting view.
+
+    Examples
+    --------
+    >>> view_source("lane_flow")
+    'lane_flow'
+    >>> view_source("lane_flow", run_id=42)
+    'lane_flow_of_run(:run_id)'
+    """
+    if view not in VIEWS:
+        raise ValueError(f"{view!r} is not a reporting view; choose one of {', '.join(VIEWS)}")
+    return view if run_id is None else f"{view}_of_run(:run_id)"
+
+
+def format_number(value, decimals: int = 2) -> str:
+    """A figure for a table: thousands separators, at least ``decimals`` places, no
+    trailing zeros beyond them; ``-`` for none.
+
+    Examples
+    --------
+    >>> format_number(Decimal("12.0000")), format_number(Decimal("0.4567")), format_number(Decimal("1234567.5")), format_number(None)
+    ('12.00', '0.4567', '1,234,567.50', '-')
+    >>> format_number(Decimal("50"), 0)
+    '50'
+    """
+    if value is None or (isinstance(value, float) and math.isnan(value)):
+        return "-"
+    exact = Decimal(str(value)).normalize()
+    places = max(decimals, -exact.as_tuple().exponent if exact.as_tuple().exponent < 0 else 0)
+    return f"{exact:,.{places}f}"
+
+
+def _frame(conn: Connection, query: str, params: dict) -> pd.DataFrame:
+    # object columns keep the database's values as they are: Decimal, None for NULL.
+    # Built column by column, which is several times faster than from row objects.
+    result = conn.execute(text(query), params)
+    names = list(result.keys())
+    columns = list(zip(*result.fetchall())) or [()] * len(names)
+    return pd.DataFrame({name: pd.Series(values, dtype=object) for name, values in zip(names, columns)})
+
+
+def _connect(engine: Engine) -> Connection:
+    """A connection for report queries (used as a context manager).
+
+    Just-in-time compilation is off for its transaction: on a week of 500,000 lanes
+    PostgreSQL's cost estimates cross the JIT thresholds, and compiling then takes
+    longer than the query itself.
+    """
+    conn = engine.connect()
+    conn.execute(text("SET LOCAL jit = off"))
+    return conn
+
+
+def _read(engine: Engine, query: str, params: dict) -> pd.DataFrame:
+    with _connect(engine) as conn:
+        return _frame(conn, query, params)
+
+
+def _check_week(period: str | None) -> None:
+    if period is not None:
+        parse_week(period)
+
+
+def site_prices(
+    engine: Engine,
+    site: str | None = None,
+    first: str | None = None,
+    last: str | None = None,
+    *,
+    kind: str | None = None,
+    run_id: int | None = None,
+) -> pd.DataFrame:
+    """Site prices with their ranges, from ``site_price_history``, by period then site.
+
+    Parameters
+    ----------
+    engine : sqlalchemy.Engine
+    site : str, optional
+        One site code (default: every site).
+    first, last : str, optional
+        First and last ISO week to include (default: all solved weeks).
+    kind : {"plant", "warehouse", "customer"}, optional
+        Only sites of this kind.
+    run_id : int, optional
+        One run instead of the latest optimal run of each week.
+
+    Returns
+    -------
+    pandas.DataFrame
+        The view's columns: ``period``, ``starts_on``, ``site``, ``kind``, ``name``,
+        ``region``, ``price``, ``price_low``, ``price_high``, ``degenerate``,
+        ``price_change``, ``run_id``, ``x``, ``y``.
+
+    Raises
+    ------
+    ValueError
+        If a week code is invalid or ``kind`` is not a site kind.
+    PlannerError
+        If ``site`` names no known site.
+    """
+    for week in (first, last):
+        _check_week(week)
+    if kind is not None and kind not in SITE_KINDS:
+        raise ValueError(f"kind {kind!r} is not a site kind; choose one of {', '.join(SITE_KINDS)}")
+    params = {
+        "site": site,
+        "kind": kind,
+        "first": None if first is None else parse_week(first),
+        "last": None if last is None else parse_week(last),
+        "run_id": run_id,
+    }
+    query = (
+        f"SELECT * FROM {view_source('site_price_history', run_id)} "
+        "WHERE (CAST(:site AS text) IS NULL OR site = :site) "
+        "AND (CAST(:kind AS text) IS NULL OR kind = :kind) "
+        "AND (CAST(:first AS date) IS NULL OR starts_on >= :first) "
+        "AND (CAST(:last AS date) IS NULL OR starts_on <= :last) "
+        "ORDER BY starts_on, site"
+    )
+    with _connect(engine) as conn:
+        if site is not None and conn.execute(
+            text("SELECT 1 FROM site WHERE code = :site"), {"site": site}
+        ).first() is None:
+            raise PlannerError(f"site {site} is not known; check the code in sites.csv")
+        return _frame(conn, query, params)
+
+
+def lane_flows(engine: Engine, period: str | None = None, *, run_id: int | None = None) -> pd.DataFrame:
+    """Rows of ``lane_flow`` for one week (or all), by period then lane label.
+
+    Parameters
+    ----------
+    engine : sqlalchemy.Engine
+    period : str, optional
+        ISO week (default: every solved week).
+    run_id : int, optional
+        One run instead of the latest optimal run of each week.
+
+    Returns
+    -------
+    pandas.DataFrame
+        ``period``, ``origin``, ``destination``, ``mode``, ``flow``, ``capacity``,
+        ``utilisation``, ``unit_cost``, ``reduced_cost``, ``capacity_value``, ``cost``,
+        ``echelon``, ``at_capacity``, ``min_quantity``, ``starts_on``, ``run_id``,
+        ``lane_id``, ``label``.
+    """
+    _check_week(period)
+    return _read(
+        engine,
+        f"SELECT * FROM {view_source('lane_flow', run_id)} "
+        "WHERE (CAST(:period AS text) IS NULL OR period = :period) ORDER BY starts_on, label",
+        {"period": period, "run_id": run_id},
+    )
+
+
+def binding_capacities(
+    engine: Engine, period: str | None = None, *, top: int | None = None, run_id: int | None = None
+) -> pd.DataFrame:
+    """Capacities in use to the limit, most valuable first, from ``binding_capacity``.
+
+    Parameters
+    ----------
+    engine : sqlalchemy.Engine
+    period : str, optional
+        ISO week (default: every solved week).
+    top : int, optional
+        At most this many rows per call (by rank; default all).
+    run_id : int, optional
+        One run instead of the latest optimal run of each week.
+
+    Returns
+    -------
+    pandas.DataFrame
+        ``period``, ``rank``, ``kind`` (``lane``, ``warehouse`` or ``storage``),
+        ``label``, ``capacity_value`` (what one more unit of capacity would save),
+        ``capacity``, ``flow``, ``origin``, ``destination``, ``mode``, ``site``,
+        ``starts_on``, ``run_id``.
+    """
+    _check_week(period)
+    return _read(
+        engine,
+        f"SELECT * FROM {view_source('binding_capacity', run_id)} "
+        "WHERE (CAST(:period AS text) IS NULL OR period = :period) "
+        "ORDER BY starts_on, rank, label LIMIT :top",
+        {"period": period, "top": top, "run_id": run_id},
+    )
+
+
+def shortages(engine: Engine, period: str | None = None, *, run_id: int | None = None) -> pd.DataFrame:
+    """Customers left short, largest shortage first, from ``shortage``.
+
+    Returns
+    -------
+    pandas.DataFrame
+        ``period``, ``customer``, ``units_short``, ``penalty`` (per unit),
+        ``penalty_cost``, ``demand``, ``name``, ``region``, ``price``, ``starts_on``,
+        ``run_id``.
+    """
+    _check_week(period)
+    return _read(
+        engine,
+        f"SELECT * FROM {view_source('shortage', run_id)} "
+        "WHERE (CAST(:period AS text) IS NULL OR period = :period) "
+        "ORDER BY starts_on, units_short DESC, customer",
+        {"period": period, "run_id": run_id},
+    )
+
+
+def run_summaries(engine: Engine, period: str | None = None, *, run_id: int | None = None) -> pd.DataFrame:
+    """The latest optimal run of each week and of each horizon (or one run), from ``run_summary``.
+
+    Parameters
+    ----------
+    engine : sqlalchemy.Engine
+    period : str, optional
+        Only this row's ``period`` (an ISO week, or ``FIRST..LAST`` for a horizon).
+    run_id : int, optional
+        This run, whatever its status.
+
+    Returns
+    -------
+    pandas.DataFrame
+        ``period``, ``status``, ``cost``, ``dual_objective``, ``certificate_ok``,
+        ``shortage_units``, ``solved_at``, ``input_fingerprint``, ``solver_seconds``,
+        ``kind``, ``run_id``, ``first_period``, ``last_period``, ``starts_on``,
+        ``duality_gap``, ``spare_units``, ``total_seconds``, ``batch_id``, ``message``.
+    """
+    return _read(
+        engine,
+        f"SELECT * FROM {view_source('run_summary', run_id)} "
+        "WHERE (CAST(:period AS text) IS NULL OR period = :period) "
+        "ORDER BY starts_on, kind DESC, last_period",
+        {"period": period, "run_id": run_id},
+    )
+
+
+def previous_week(period: str) -> str:
+    """ISO week before ``period``.
+
+    Examples
+    --------
+    >>> previous_week("2027-W01")
+    '2026-W53'
+    """
+    return week_code(parse_week(period) - datetime.timedelta(days=7))
+
+
+def cost_breakdown(engine: Engine, period: str, *, run_id: int | None = None) -> pd.DataFrame:
+    """A week's cost by echelon and mode, plus warehouse handling and shortage penalties.
+
+    The rows add up to the run's cost: lane costs (``flow * unit_cost``) per echelon
+    (``plant->warehouse``, ``warehouse->customer``, ...) and mode over the lanes in
+    use, then ``warehouse handling`` (throughput times handling cost) and
+    ``shortage penalty``.
+
+    Parameters
+    ----------
+    engine : sqlalchemy.Engine
+    period : str
+        ISO week.
+    run_id : int, optional
+        A week run of ``period`` (default: its latest optimal run).
+
+    Returns
+    -------
+    pandas.DataFrame
+        ``echelon``, ``mode``, ``units``, ``cost``; empty when the week has no run.
+    """
+    _check_week(period)
+    with _connect(engine) as conn:
+        run = _week_run(conn, period, run_id)
+        if run is None:
+            return pd.DataFrame(columns=["echelon", "mode", "units", "cost"], dtype=object)
+        # With the run's ids known, PostgreSQL plans with their values and estimates
+        # the rows of the big tables well (a view's lateral run lookup hides them).
+        return _frame(conn, _COST_BREAKDOWN, run)
+
+
+_COST_BREAKDOWN = """
+SELECT echelon, mode, units, cost FROM (
+    SELECT 1 AS part, ov.kind || '->' || dv.kind AS echelon, l.mode,
+           sum(f.flow) AS units, sum(f.flow * lr.unit_cost) AS cost
+    FROM run_flow f
+    JOIN lane_rate lr ON lr.batch_id = :batch_id AND lr.period_id = :period_id
+         AND lr.lane_id = f.lane_id
+    JOIN lane l ON l.id = f.lane_id
+    JOIN site_version ov ON ov.batch_id = :batch_id AND ov.site_id = l.origin_id
+    JOIN site_version dv ON dv.batch_id = :batch_id AND dv.site_id = l.destination_id
+    WHERE f.run_id = :run_id AND f.period_id = :period_id AND f.flow > 0
+    GROUP BY 2, 3
+    UNION ALL
+    SELECT 2, 'warehouse handling', '', sum(r.throughput_flow),
+           sum(r.throughput_flow * sv.handling_cost)
+    FROM run_site_price r
+    JOIN site_version sv ON sv.batch_id = :batch_id AND sv.site_id = r.site_id
+    WHERE r.run_id = :run_id AND r.period_id = :period_id AND sv.handling_cost > 0
+    HAVING count(*) > 0
+    UNION ALL
+    SELECT 3, 'shortage penalty', '', sum(r.shortage), sum(r.shortage * d.shortage_penalty)
+    FROM run_site_price r
+    JOIN demand d ON d.batch_id = :batch_id AND d.period_id = :period_id AND d.site_id = r.site_id
+    WHERE r.run_id = :run_id AND r.period_id = :period_id AND r.shortage > 0
+    HAVING count(*) > 0
+) parts
+ORDER BY part, cost DESC, echelon, mode
+"""
+
+
+def _week_run(conn: Connection, period: str, run_id: int | None) -> dict | None:
+    """``run_id``, ``period_id``, ``batch_id`` of the week run reported on, or None.
+
+    Which run is the latest is decided by the ``run_summary`` view alone.
+    """
+    row = conn.execute(
+        text(
+            f"SELECT s.run_id, r.period_id, r.batch_id FROM {view_source('run_summary', run_id)} s "
+            "JOIN solve_run r ON r.id = s.run_id "
+            "WHERE s.period = :period AND s.kind = 'week' AND s.status = 'optimal'"
+        ),
+        {"period": period, "run_id": run_id},
+    ).mappings().first()
+    return None if row is None else dict(row)
+
+
+def price_moves(
+    engine: Engine, period: str, *, top: int | None = 10, run_id: int | None = None
+) -> pd.DataFrame:
+    """Sites whose price changed most from the previous ISO week, largest change first.
+
+    Compares the prices of ``period`` (its latest optimal run, or ``run_id``) with
+    the latest optimal run of the week before; sites whose price did not change
+    are left out.
+
+    Returns
+    -------
+    pandas.DataFrame
+        ``site``, ``kind``, ``region``, ``previous_price``, ``price``, ``change``,
+        ``price_low``, ``price_high``, ``degenerate``; empty when either week has
+        no optimal run.
+    """
+    _check_week(period)
+    query = f"""
+        SELECT cur.site, cur.kind, cur.region, prev.price AS previous_price, cur.price,
+               cur.price - prev.price AS change, cur.price_low, cur.price_high, cur.degenerate
+        FROM {view_source('site_price_history', run_id)} cur
+        JOIN site_price_history prev ON prev.site = cur.site AND prev.period = :previous
+        WHERE cur.period = :period AND cur.price <> prev.price
+        ORDER BY abs(cur.price - prev.price) DESC, cur.site
+        LIMIT :top
+    """
+    return _read(
+        engine, query, {"period": period, "previous": previous_week(period), "top": top, "run_id": run_id}
+    )
+
+
+def network_of_week(
+    engine: Engine, period: str, *, max_lanes: int = 3000, run_id: int | None = None
+) -> tuple[pd.DataFrame, pd.DataFrame, int]:
+    """Sites and busiest lanes of a week, for the network picture.
+
+    Parameters
+    ----------
+    engine : sqlalchemy.Engine
+    period : str
+        ISO week.
+    max_lanes : int
+        At most this many lanes in use, the busiest first.
+    run_id : int, optional
+        One run instead of the week's latest optimal run.
+
+    Returns
+    -------
+    sites : pandas.DataFrame
+        ``site``, ``kind``, ``region``, ``x``, ``y``.
+    lanes : pandas.DataFrame
+        ``origin``, ``destination``, ``mode``, ``flow``, ``at_capacity``.
+    lanes_in_use : int
+        How many lanes carry flow in the week (may exceed ``len(lanes)``).
+    """
+    _check_week(period)
+    params = {"period": period, "run_id": run_id, "limit": max_lanes}
+    with _connect(engine) as conn:
+        sites = _frame(
+            conn,
+            f"SELECT site, kind, region, x, y FROM {view_source('site_price_history', run_id)} "
+            "WHERE period = :period ORDER BY site",
+            params,
+        )
+        lanes = _frame(
+            conn,
+            "SELECT origin, destination, mode, flow, at_capacity, count(*) OVER () AS lanes_in_use "
+            f"FROM {view_source('lane_flow', run_id)} WHERE period = :period AND flow > 0 "
+            "ORDER BY flow DESC, at_capacity DESC, label LIMIT :limit",
+            params,
+        )
+    in_use = 0 if lanes.empty else lanes["lanes_in_use"].iloc[0]
+    lanes = lanes.drop(columns="lanes_in_use")
+    return sites, lanes, int(in_use)
+
+
+@dataclass(frozen=True)
+class WeekReport:
+    """Everything the weekly report shows about one week.
+
+    ``run`` is the ``run_summary`` row of the run reported on, or None when the
+    week has no optimal run (then ``message`` says why and the tables are empty).
+    """
+
+    period: str
+    previous_period: str
+    run: dict | None
+    cost: pd.DataFrame
+    binding: pd.DataFrame
+    moves: pd.DataFrame
+    shortages: pd.DataFrame
+    message: str = ""
+    notes: list[str] = field(default_factory=list)
+
+    @property
+    def empty(self) -> bool:
+        """True when there is no run to report on."""
+        return self.run is None
+
+    def sections(self) -> dict[str, pd.DataFrame]:
+        """The report's tables by section name (:data:`REPORT_SECTIONS`)."""
+        return {"cost": self.cost, "binding": self.binding, "moves": self.moves, "shortages": self.shortages}
+
+    @property
+    def cost_total(self) -> Decimal:
+        """Sum of the cost breakdown; equals the run's cost."""
+        return sum(self.cost["cost"], Decimal(0))
+
+
+def _newest_attempt(conn: Connection, period: str) -> dict | None:
+    row = conn.execute(
+        text(
+            "SELECT sr.id, sr.status FROM solve_run sr JOIN period p ON p.id = sr.period_id "
+            "WHERE p.code = :period AND sr.kind = 'week' "
+            "ORDER BY sr.finished_at DESC NULLS LAST, sr.id DESC LIMIT 1"
+        ),
+        {"period": period},
+    ).mappings().first()
+    return None if row is None else dict(row)
+
+
+def week_report(engine: Engine, period: str, *, top: int = 10, run_id: int | None = None) -> WeekReport:
+    """The weekly report of ``period``: cost, binding capacities, price moves, shortages.
+
+    Parameters
+    ----------
+    engine : sqlalchemy.Engine
+    period : str
+        ISO week, for example ``"2026-W49"``.
+    top : int
+        How many binding capacities and price moves to show.
+    run_id : int, optional
+        A week run of ``period`` to report on (default: its latest optimal run).
+
+    Returns
+    -------
+    WeekReport
+        With ``run`` None and a ``message`` when the week has no optimal run.
+
+    Raises
+    ------
+    ValueError
+        If ``period`` is not an ISO week code.
+    PlannerError
+        If ``run_id`` is not a week run of ``period``.
+    """
+    _check_week(period)
+    previous = previous_week(period)
+    with _connect(engine) as conn:
+        runs = _frame(
+            conn,
+            f"SELECT * FROM {view_source('run_summary', run_id)} WHERE period = :period AND kind = 'week'",
+            {"period": period, "run_id": run_id},
+        )
+        newest = _newest_attempt(conn, period)
+        previous_solved = conn.execute(
+            text("SELECT 1 FROM run_summary WHERE period = :previous AND kind = 'week'"),
+            {"previous": previous},
+        ).first()
+    if run_id is not None and runs.empty:
+        raise PlannerError(f"run {run_id} is not a week run of {period}; list runs with `planner periods`")
+    empty = pd.DataFrame()
+    if runs.empty:
+        if newest is None:
+            message = f"no run of {period} yet; solve it with `planner solve --period {period}`"
+        else:
+            message = (
+                f"no optimal run of {period}: its latest run {newest['id']} ended {newest['status']}; "
+                f"see `planner certificate --period {period}`"
+            )
+        return WeekReport(period, previous, None, empty, empty, empty, empty, message=message)
+    run = runs.iloc[0].to_dict()
+    if run["status"] != "optimal":
+        return WeekReport(
+            period, previous, run, empty, empty, empty, empty,
+            message=f"run {run['run_id']} of {period} ended {run['status']}: nothing to report",
+        )
+    notes = []
+    if run_id is None and newest is not None and newest["id"] != run["run_id"]:
+        notes.append(
+            f"the newest run of {period} (run {newest['id']}) ended {newest['status']}; "
+            f"this report shows run {run['run_id']}, the latest optimal one"
+        )
+    if previous_solved is None:
+        notes.append(f"no optimal run of the previous week {previous} to compare prices with")
+    return WeekReport(
+        period=period,
+        previous_period=previous,
+        run=run,
+        cost=cost_breakdown(engine, period, run_id=run_id),
+        binding=binding_capacities(engine, period, top=top, run_id=run_id),
+        moves=price_moves(engine, period, top=top, run_id=run_id),
+        shortages=shortages(engine, period, run_id=run_id),
+        notes=notes,
+    )
