@@ -30,23 +30,14 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from planner.ingest import FILE_COLUMNS
 from planner.periods import parse_week, week_code
 
-SITE_COLUMNS = (
-    "site",
-    "kind",
-    "name",
-    "region",
-    "throughput_capacity",
-    "handling_cost",
-    "holding_cost",
-    "storage_capacity",
-    "x",
-    "y",
-)
-SUPPLY_COLUMNS = ("period", "site", "quantity")
-DEMAND_COLUMNS = ("period", "site", "quantity", "shortage_penalty")
-LANE_COLUMNS = ("period", "origin", "destination", "mode", "unit_cost", "capacity", "min_quantity")
+# The CSV contract has one home, the loader; the generator writes exactly it.
+SITE_COLUMNS = FILE_COLUMNS["sites.csv"]
+SUPPLY_COLUMNS = FILE_COLUMNS["supply.csv"]
+DEMAND_COLUMNS = FILE_COLUMNS["demand.csv"]
+LANE_COLUMNS = FILE_COLUMNS["lanes.csv"]
 
 #: First syllable of an invented name.
 NAME_HEADS = (
