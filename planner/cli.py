@@ -14,6 +14,7 @@ from typing import Optional
 import typer
 from rich.console import Console
 from rich.table import Column, Table
+from rich.text import Text
 
 from planner.errors import PlannerError
 
@@ -41,7 +42,8 @@ def _engine(database_url: Optional[str]):
 
 
 def _fail(err: Exception, code: int = 2) -> None:
-    err_console.print(f"[bold red]error:[/] {err}", highlight=False, soft_wrap=True)
+    # Messages quote user data (codes, values), so they are never read as markup.
+    err_console.print(Text.assemble(("error: ", "bold red"), str(err)), highlight=False, soft_wrap=True)
     raise typer.Exit(code)
 
 
@@ -58,7 +60,7 @@ def init(database_url: Optional[str] = typer.Option(None, "--database-url", help
         db.migrate(db.get_engine(url))
     except PlannerError as err:
         _fail(err)
-    console.print(f"schema is up to date on {db.masked_url(url)}", highlight=False)
+    console.print(f"schema is up to date on {db.masked_url(url)}", markup=False, highlight=False)
 
 
 @app.command()
@@ -76,7 +78,7 @@ def load(
         result = load_folder(_engine(database_url), folder)
     except PlannerError as err:
         _fail(err)
-    console.print(result.message, highlight=False, soft_wrap=True)
+    console.print(result.message, markup=False, highlight=False, soft_wrap=True)
 
 
 @app.command()
@@ -140,7 +142,7 @@ def solve(
             summary = solve_horizon(engine, parse_week_span(horizon), scaling)
             _summary_table([summary], title="Linked horizon")
             if summary.message:
-                err_console.print(summary.message, highlight=False, soft_wrap=True)
+                err_console.print(summary.message, markup=False, highlight=False, soft_wrap=True)
             raise typer.Exit(0 if summary.ok else 1)
         chosen = select_periods(engine, period=period, all_periods=all_periods, first=first, last=last)
     except (PlannerError, ValueError) as err:
@@ -160,7 +162,7 @@ def solve(
     for o in outcomes:
         message = o.note if o.summary is None else o.summary.message
         if message:
-            err_console.print(f"{o.period}: {message}", highlight=False, soft_wrap=True)
+            err_console.print(f"{o.period}: {message}", markup=False, highlight=False, soft_wrap=True)
     if any(not o.ok for o in outcomes):
         raise typer.Exit(1)
 
@@ -253,7 +255,7 @@ def explain(
         explanation = explain_site(_engine(database_url), site, period, run_id=run_id)
     except PlannerError as err:
         _fail(err)
-    console.print(explanation.text(), highlight=False, soft_wrap=True)
+    console.print(explanation.text(), markup=False, highlight=False, soft_wrap=True)
     if explanation.steps:
         table = Table("step", "unit cost", "running")
         for step in explanation.steps:
@@ -284,8 +286,8 @@ def demo(
         report = run_demo(engine, target)
     except PlannerError as err:
         _fail(err)
-    console.print(f"demo network written to {report.folder}", highlight=False, soft_wrap=True)
-    console.print(report.load_message, highlight=False, soft_wrap=True)
+    console.print(f"demo network written to {report.folder}", markup=False, highlight=False, soft_wrap=True)
+    console.print(report.load_message, markup=False, highlight=False, soft_wrap=True)
     weeks = Table("week", "status", "cost", "shortage", "certificate", title="Cost of each week")
     for s in report.runs:
         weeks.add_row(s.period, s.status, _money(s.cost), f"{s.shortage or 0:,}", _cert(s.certificate_ok))
@@ -298,7 +300,7 @@ def demo(
         "open the database with psql:\n  psql " + _psql_target(url) +
         "\nthen for example: SELECT * FROM site_price_history WHERE site = "
         f"'{report.movers[0]['site'] if report.movers else 'C0001'}' ORDER BY period;",
-        highlight=False, soft_wrap=True,
+        markup=False, highlight=False, soft_wrap=True,
     )
     if any(not s.ok for s in report.runs):
         raise typer.Exit(1)
