@@ -962,6 +962,10 @@ def load_folder(engine: sa.Engine, folder: str | Path) -> LoadResult:
             raise PlannerError(
                 f"the database refused the rows of {path} ({error}); nothing was loaded"
             ) from error
+    # Fresh statistics, so that the solve that usually follows a load (cron)
+    # plans its snapshot reads on the new row counts, whatever autovacuum does.
+    with engine.begin() as connection:
+        connection.execute(sa.text("ANALYZE site, site_version, period_snapshot, supply, demand, lane, lane_rate"))
     rows = {name: digest.rows for name, digest in validated.files.items()}
     counts = ", ".join(f"{name} {count:,}" for name, count in rows.items())
     return LoadResult(
