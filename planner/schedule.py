@@ -2,7 +2,8 @@
 
 ``solve_many`` spreads independent weeks over worker processes; each week's
 run is committed by its worker as soon as it finishes, and one failing week
-does not stop the others.
+does not stop the others. Each week is solved under its advisory lock, so an
+explicit solve and a running ``resolve`` never work on the same week at once.
 
 ``resolve`` solves exactly the weeks whose current snapshot differs from the
 one their latest successful run used (the run's input fingerprint). A
@@ -16,8 +17,9 @@ from __future__ import annotations
 import os
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from concurrent.futures.process import BrokenProcessPool
+from contextlib import contextmanager
 from dataclasses import dataclass
-from typing import Callable, Iterable
+from typing import Callable, Iterable, Iterator
 
 from sqlalchemy import Connection, Engine, text
 from sqlalchemy.exc import SQLAlchemyError
@@ -43,12 +45,36 @@ class WeekOutcome:
         return self.summary is not None and self.summary.ok
 
 
+@contextmanager
+def week_lock(engine: Engine, period: str) -> Iterator[None]:
+    """Hold the advisory lock of ``period`` for the block, waiting for it if needed.
+
+    ``resolve`` skips a week whose lock is held, so an explicit solve and a
+    cron re-solve never work on the same week at the same time.
+    """
+    with engine.connect() as conn:
+        key = {"ns": LOCK_NAMESPACE, "id": current_batch(conn, period)[0]}
+        conn.execute(text("SELECT pg_advisory_lock(:ns, :id)"), key)
+        conn.commit()
+        try:
+            yield
+        finally:
+            conn.execute(text("SELECT pg_advisory_unlock(:ns, :id)"), key)
+            conn.commit()
+
+
+def solve_locked(engine: Engine, period: str, scaling: Scaling) -> RunSummary:
+    """:func:`~planner.runs.solve_period` under the week's advisory lock."""
+    with week_lock(engine, period):
+        return solve_period(engine, period, scaling)
+
+
 def _solve_in_worker(url: str, period: str, scaling: Scaling) -> RunSummary:
     from planner.db import get_engine
 
     engine = get_engine(url)
     try:
-        return solve_period(engine, period, scaling)
+        return solve_locked(engine, period, scaling)
     finally:
         engine.dispose()
 
@@ -87,7 +113,7 @@ def solve_many(
         engine = get_engine(url)
         try:
             for period in periods:
-                outcomes[period] = _guarded(lambda: solve_period(engine, period, scaling), period)
+                outcomes[period] = _guarded(lambda: solve_locked(engine, period, scaling), period)
                 if on_done:
                     on_done(outcomes[period])
         finally:

@@ -238,3 +238,33 @@ def test_two_resolves_started_together_solve_each_week_once(engine: sa.Engine, t
     runs = week_runs(engine)
     assert Counter(r.period for r in runs) == Counter({w: 1 for w in weeks})
     assert all(r.status == "optimal" and r.certificate_ok for r in runs)
+
+
+def test_solve_all_waits_for_a_week_that_resolve_holds(engine: sa.Engine, write_folder, network_files) -> None:
+    import threading
+    import time
+
+    from planner.schedule import solve_many
+
+    load(write_folder(network_files))
+    url = engine.url.render_as_string(hide_password=False)
+    with engine.connect() as holder:
+        period_id = holder.execute(sa.text("SELECT id FROM period WHERE code = '2026-W40'")).scalar_one()
+        key = {"ns": LOCK_NAMESPACE, "id": period_id}
+        holder.execute(sa.text("SELECT pg_advisory_lock(:ns, :id)"), key)
+        holder.commit()
+        result = {}
+        worker = threading.Thread(
+            target=lambda: result.update(out=solve_many(url, ["2026-W40"], workers=1))
+        )
+        worker.start()
+        time.sleep(1.5)
+        # While another session holds the week, the explicit solve waits.
+        assert worker.is_alive()
+        assert week_runs(engine) == []
+        holder.execute(sa.text("SELECT pg_advisory_unlock(:ns, :id)"), key)
+        holder.commit()
+    worker.join(timeout=60)
+    assert not worker.is_alive()
+    assert [o.ok for o in result["out"]] == [True]
+    assert [r.period for r in week_runs(engine)] == ["2026-W40"]
