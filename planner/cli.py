@@ -107,7 +107,9 @@ def _money(value) -> str:
 
 
 def _cert(ok) -> str:
-    return {True: "exact", False: "FAILED", None: "-"}[ok]
+    from planner.runs import certificate_word
+
+    return certificate_word(ok)
 
 
 @app.command()

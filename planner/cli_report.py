@@ -239,9 +239,11 @@ def _report_json(result, section: Section | None) -> dict | list:
 
 
 def _print_report(console, result, section: Section | None) -> None:
+    from planner.runs import certificate_word
+
     run = result.run
     if section is None:
-        certificate = {True: "exact", False: "FAILED", None: "-"}[run["certificate_ok"]]
+        certificate = certificate_word(run["certificate_ok"])
         console.print(
             f"[bold]{result.period}[/]: run {run['run_id']}, {run['status']}, cost {number(run['cost'])}, "
             f"dual objective {number(run['dual_objective'])}, certificate {certificate}, "

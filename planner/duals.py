@@ -43,7 +43,7 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.csgraph import dijkstra
 
-from planner.instance import INT64_MAX, ArcKind, Instance
+from planner.instance import INT64_MAX, Instance
 from planner.solve import exact_dot
 
 #: Residual capacity of an arc without an upper bound.
@@ -433,8 +433,3 @@ def marginal_path(inst: Instance, ranges: PriceRanges, res: Residual, node: int)
         guard -= 1
     steps.reverse()
     return steps
-
-
-def is_lane(inst: Instance, arc: int) -> bool:
-    """Whether instance arc ``arc`` is an input lane."""
-    return int(inst.arc_kind[arc]) == ArcKind.LANE

@@ -511,12 +511,15 @@ def _validate_sites(
     return _SiteIndex(pd.Index(unique_sites["site"]), kinds), canonical
 
 
-def _validate_supply(
-    frame: pd.DataFrame, sites: _SiteIndex | None, problems: list[Problem]
-) -> pd.DataFrame:
-    checks = _Checks(SUPPLY, frame, problems)
+def _validate_site_quantities(
+    name: str, frame: pd.DataFrame, sites: _SiteIndex | None, problems: list[Problem],
+    kind: str, role: str,
+) -> tuple[_Checks, pd.DataFrame]:
+    """The checks shared by supply.csv and demand.csv: period, site of ``kind``, one row
+    per period and site, a non-negative quantity."""
+    checks = _Checks(name, frame, problems)
     good_period = checks.period()
-    good_site = checks.site("site", sites, ("plant",), "supply sites must be plants")
+    good_site = checks.site("site", sites, (kind,), role)
     checks.duplicates(
         ["period", "site"],
         good_period & good_site,
@@ -525,23 +528,24 @@ def _validate_supply(
     )
     canonical = frame[["period", "site"]].copy()
     canonical["quantity"] = checks.number("quantity", required=True, nonnegative=True)
+    return checks, canonical
+
+
+def _validate_supply(
+    frame: pd.DataFrame, sites: _SiteIndex | None, problems: list[Problem]
+) -> pd.DataFrame:
+    _, canonical = _validate_site_quantities(
+        SUPPLY, frame, sites, problems, "plant", "supply sites must be plants"
+    )
     return canonical
 
 
 def _validate_demand(
     frame: pd.DataFrame, sites: _SiteIndex | None, problems: list[Problem]
 ) -> pd.DataFrame:
-    checks = _Checks(DEMAND, frame, problems)
-    good_period = checks.period()
-    good_site = checks.site("site", sites, ("customer",), "demand sites must be customers")
-    checks.duplicates(
-        ["period", "site"],
-        good_period & good_site,
-        "site",
-        _site_in_period,
+    checks, canonical = _validate_site_quantities(
+        DEMAND, frame, sites, problems, "customer", "demand sites must be customers"
     )
-    canonical = frame[["period", "site"]].copy()
-    canonical["quantity"] = checks.number("quantity", required=True, nonnegative=True)
     canonical["shortage_penalty"] = checks.number(
         "shortage_penalty", required=False, nonnegative=True
     )

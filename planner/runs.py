@@ -40,6 +40,11 @@ class RunSummary:
         return self.status == "optimal"
 
 
+def certificate_word(ok: bool | None) -> str:
+    """How a run's certificate reads: ``exact``, ``FAILED``, or ``-`` when it has none."""
+    return {True: "exact", False: "FAILED", None: "-"}[ok]
+
+
 class _LaneLabels:
     """A snapshot's lane labels, built on the first lookup.
 
@@ -271,7 +276,7 @@ def run_certificate(engine: Engine, *, period: str | None = None, run_id: int | 
         "dual objective": row["dual_objective"],
         "difference": row["duality_gap"],
         "precision": f"{row['cost_decimals']} cost decimals, {row['quantity_decimals']} quantity decimals",
-        "certificate": "exact" if row["certificate_ok"] else "FAILED",
+        "certificate": certificate_word(bool(row["certificate_ok"])),
     }
 
 
@@ -299,17 +304,15 @@ def horizon_snapshots(conn, periods: list[str], scaling: Scaling) -> tuple[list[
     # capacity, so lane indices mean the same in every period of the horizon.
     origin = np.zeros(m, np.int64)
     destination = np.zeros(m, np.int64)
-    for t, s in enumerate(snaps):
-        si = np.searchsorted(site_id, s.site_id)
-        li = np.searchsorted(lane_id, s.lane_id)
+    # Each period's site and lane indices on the merged lists.
+    indices = [(np.searchsorted(site_id, s.site_id), np.searchsorted(lane_id, s.lane_id)) for s in snaps]
+    for t, (s, (si, li)) in enumerate(zip(snaps, indices)):
         code[si], kind[si], kind_name[si] = s.site_code, s.week.site_kind, s.site_kind_name
         labels[li] = s.lane_labels()
         present[t, li] = True
         origin[li] = si[s.week.lane_origin]
         destination[li] = si[s.week.lane_destination]
-    for t, s in enumerate(snaps):
-        si = np.searchsorted(site_id, s.site_id)
-        li = np.searchsorted(lane_id, s.lane_id)
+    for s, (si, li) in zip(snaps, indices):
         w = s.week
 
         def sites(values, default):

@@ -46,21 +46,28 @@ class WeekOutcome:
 
 
 @contextmanager
-def week_lock(engine: Engine, period: str) -> Iterator[None]:
-    """Hold the advisory lock of ``period`` for the block, waiting for it if needed.
+def week_lock(engine: Engine, period: str, *, wait: bool = True) -> Iterator[bool]:
+    """Hold the advisory lock of ``period`` for the block; yield whether it is held.
 
-    ``resolve`` skips a week whose lock is held, so an explicit solve and a
+    With ``wait`` the block starts once the lock is free (an explicit solve);
+    without, it starts at once and gets False when another session holds the
+    lock (``resolve`` then skips the week). Either way an explicit solve and a
     cron re-solve never work on the same week at the same time.
     """
     with engine.connect() as conn:
         key = {"ns": LOCK_NAMESPACE, "id": current_batch(conn, period)[0]}
-        conn.execute(text("SELECT pg_advisory_lock(:ns, :id)"), key)
+        if wait:
+            conn.execute(text("SELECT pg_advisory_lock(:ns, :id)"), key)
+            held = True
+        else:
+            held = conn.execute(text("SELECT pg_try_advisory_lock(:ns, :id)"), key).scalar_one()
         conn.commit()
         try:
-            yield
+            yield held
         finally:
-            conn.execute(text("SELECT pg_advisory_unlock(:ns, :id)"), key)
-            conn.commit()
+            if held:
+                conn.execute(text("SELECT pg_advisory_unlock(:ns, :id)"), key)
+                conn.commit()
 
 
 def solve_locked(engine: Engine, period: str, scaling: Scaling) -> RunSummary:
@@ -208,32 +215,21 @@ def resolve(
         if not stale:
             log(f"{period} skipped: {why}")
             continue
-        with engine.connect() as lock_conn:
-            period_id = current_batch(lock_conn, period)[0]
-            got = lock_conn.execute(
-                text("SELECT pg_try_advisory_lock(:ns, :id)"), {"ns": LOCK_NAMESPACE, "id": period_id}
-            ).scalar_one()
-            lock_conn.commit()
-            if not got:
+        with week_lock(engine, period, wait=False) as held:
+            if not held:
                 log(f"{period} skipped: being solved by another process")
                 continue
-            try:
-                stale, why = is_stale(lock_conn, period, scaling)
-                lock_conn.commit()
-                if not stale:
-                    log(f"{period} skipped: {why}")
-                    continue
-                outcome = _guarded(lambda: solve_period(engine, period, scaling), period)
-                done.append(outcome)
-                s = outcome.summary
-                if s is None:
-                    log(f"{period} failed: {outcome.note}")
-                else:
-                    cost = "-" if s.cost is None else f"{s.cost:.2f}"
-                    log(f"{period} {s.status} run {s.run_id} cost {cost} ({why}) {s.seconds['total']:.2f}s")
-            finally:
-                lock_conn.execute(
-                    text("SELECT pg_advisory_unlock(:ns, :id)"), {"ns": LOCK_NAMESPACE, "id": period_id}
-                )
-                lock_conn.commit()
+            with engine.connect() as conn:
+                stale, why = is_stale(conn, period, scaling)
+            if not stale:
+                log(f"{period} skipped: {why}")
+                continue
+            outcome = _guarded(lambda: solve_period(engine, period, scaling), period)
+            done.append(outcome)
+            s = outcome.summary
+            if s is None:
+                log(f"{period} failed: {outcome.note}")
+            else:
+                cost = "-" if s.cost is None else f"{s.cost:.2f}"
+                log(f"{period} {s.status} run {s.run_id} cost {cost} ({why}) {s.seconds['total']:.2f}s")
     return done

@@ -116,11 +116,6 @@ def solve_flow(inst: Instance) -> FlowSolution:
     raise RuntimeError(f"the min-cost-flow solver stopped with status {status.name}")
 
 
-def bare_solve_seconds(inst: Instance) -> float:
-    """Time of the bare OR-Tools solve on the instance's arrays (for benchmarks)."""
-    return solve_flow(inst).solver_seconds
-
-
 def exact_dot(a: np.ndarray, b: np.ndarray) -> int:
     """Exact integer dot product of two int64 arrays, as a Python int.
 

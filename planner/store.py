@@ -13,6 +13,7 @@ from decimal import Decimal
 import numpy as np
 from sqlalchemy import Connection, text
 
+from planner.duals import UNLIMITED
 from planner.instance import ArcKind, Instance, SiteKind
 from planner.optimize import Outcome, shortage_units, spare_units
 from planner.snapshot import Scaling
@@ -263,8 +264,6 @@ def _reasons(missing: np.ndarray, reason: str, k: int) -> list[str]:
 
 def _units_text(units: np.ndarray, qd: int) -> list[str]:
     # An unlimited bottleneck means the route has no capacity limit at all.
-    from planner.duals import UNLIMITED
-
     arr = np.array(decimal_text(np.where(units == UNLIMITED, 0, units), qd), dtype=object)
     arr[units == UNLIMITED] = "Infinity"
     return arr.tolist()
