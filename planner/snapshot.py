@@ -99,6 +99,61 @@ def copy_frame(conn: Connection, query: str, params: dict, columns: list[str]) -
     )
 
 
+def fetch_columns(
+    conn: Connection,
+    query: str,
+    params: dict,
+    *,
+    ints: list[str],
+    texts: list[str] = (),
+    order_by: str | None = None,
+) -> dict[str, np.ndarray]:
+    """The rows of ``query`` as one array per named column, in one round trip.
+
+    PostgreSQL packs each integer column into a single ``bytea`` of big-endian
+    int8 values (``int8send``), which numpy reads in place, and each text
+    column into one array: no Python object per row on the way. The integer
+    columns must not be NULL (coalesce them in ``query``); a NULL would shift
+    the packed values, so it is refused. ``params`` are bound by psycopg.
+
+    Parameters
+    ----------
+    query : str
+        A SELECT whose output columns carry the names in ``ints`` and ``texts``.
+    order_by : str, optional
+        An integer column the arrays are sorted on (stably) before they are
+        returned; aggregates keep the rows aligned but need not keep their order.
+
+    Returns
+    -------
+    dict of str to numpy.ndarray
+        int64 arrays for ``ints``, object arrays of str for ``texts``.
+    """
+    parts = ["count(*)"]
+    parts += [f"string_agg(int8send(q.{c}::int8), ''::bytea)" for c in ints]
+    parts += [f"array_agg(q.{c})" for c in texts]
+    raw = conn.connection.driver_connection
+    with raw.cursor(binary=True) as cur:
+        row = cur.execute(f"SELECT {', '.join(parts)} FROM ({query}) q", params).fetchone()
+    count, values = int(row[0]), row[1:]
+    out: dict[str, np.ndarray] = {}
+    for column, packed in zip(ints, values):
+        packed = bytes(packed or b"")
+        if len(packed) != 8 * count:
+            raise PlannerError(f"internal error: column {column} holds NULL values")
+        out[column] = np.frombuffer(packed, dtype=">i8").astype(np.int64)
+    for column, items in zip(texts, values[len(ints):]):
+        arr = np.empty(count, dtype=object)
+        arr[:] = items or []
+        out[column] = arr
+    if order_by is not None and count > 1:
+        key = out[order_by]
+        if (key[1:] < key[:-1]).any():
+            order = np.argsort(key, kind="stable")
+            out = {k: v[order] for k, v in out.items()}
+    return out
+
+
 def current_batch(conn: Connection, period: str, batch_id: int | None = None) -> tuple[int, int, str]:
     """``(period_id, batch_id, fingerprint)`` of the period's current snapshot
     (or of its snapshot in ``batch_id``).
@@ -153,22 +208,41 @@ _ROW_NAME = {
 }
 
 
+def _decimals(scaling: Scaling, scale_attr: str) -> int:
+    return scaling.quantity_decimals if scale_attr == "quantity_scale" else scaling.cost_decimals
+
+
 def _check_precision(conn: Connection, period_id: int, batch_id: int, scaling: Scaling) -> None:
     """Refuse figures with more decimals than the precision, or beyond 64 bits once scaled.
 
-    One cheap scan per table finds whether any figure is off; only then is
-    the offending row looked up by name. The scaled casts of
-    :func:`read_snapshot` would otherwise round or fail inside PostgreSQL.
+    One cheap scan per table reads each column's largest display scale and
+    magnitude; a column is cleared when those fit. Only a column they do not
+    clear (a figure may show trailing zeros, ``1.50`` at one decimal) gets the
+    exact test of every figure, and only a failing one the lookup of the
+    offending row by name. The scaled casts of :func:`read_snapshot` would
+    otherwise round or fail inside PostgreSQL.
     """
     problems = []
     params = {"b": batch_id, "p": period_id, "limit": INT64_MAX}
     for table, columns in _SCALED.items():
         period_filter = "" if table == "site_version" else " AND period_id = :p"
+        stats = conn.execute(
+            text(
+                "SELECT " + ", ".join(f"max(scale({c})), max(abs({c}))" for c in columns)
+                + f" FROM {table} t WHERE batch_id = :b{period_filter}"
+            ),
+            params,
+        ).one()
         tests = []
-        for column, scale_attr in columns.items():
+        for i, (column, scale_attr) in enumerate(columns.items()):
             s = getattr(scaling, scale_attr)
+            top_scale, top = stats[2 * i], stats[2 * i + 1]
+            if top is None or (top_scale <= _decimals(scaling, scale_attr) and top * s <= INT64_MAX):
+                continue
             tests.append((column, scale_attr, f"{column} * {s} <> trunc({column} * {s})", "inexact"))
             tests.append((column, scale_attr, f"abs({column} * {s}) > :limit", "huge"))
+        if not tests:
+            continue
         flags = conn.execute(
             text(
                 "SELECT " + ", ".join(f"coalesce(bool_or({cond}), false)" for _, _, cond, _ in tests)
@@ -186,9 +260,8 @@ def _check_precision(conn: Connection, period_id: int, batch_id: int, scaling: S
                 ),
                 params,
             ).one()
-            quantity = scale_attr == "quantity_scale"
-            decimals = scaling.quantity_decimals if quantity else scaling.cost_decimals
-            option = "--quantity-decimals" if quantity else "--cost-decimals"
+            decimals = _decimals(scaling, scale_attr)
+            option = "--quantity-decimals" if scale_attr == "quantity_scale" else "--cost-decimals"
             where = f"{_FILES[table]} column {column}"
             what = "lane" if table == "lane_rate" else "site"
             if problem == "inexact":
@@ -233,74 +306,89 @@ def read_snapshot(
     _check_precision(conn, period_id, batch_id, scaling)
     q, c = scaling.quantity_scale, scaling.unit_cost_scale
     params = {"b": batch_id, "p": period_id, "q": q, "c": c}
-    sites = copy_frame(
+    sites = fetch_columns(
         conn,
         "SELECT sv.site_id, s.code, sv.kind, "
-        "coalesce((sv.throughput_capacity * %(q)s)::bigint, -1), "
-        "coalesce((sv.handling_cost * %(c)s)::bigint, 0), "
-        "coalesce((sv.holding_cost * %(c)s)::bigint, 0), "
+        "coalesce((sv.throughput_capacity * %(q)s)::bigint, -1) AS throughput, "
+        "coalesce((sv.handling_cost * %(c)s)::bigint, 0) AS handling, "
+        "coalesce((sv.holding_cost * %(c)s)::bigint, 0) AS holding, "
         # No storage figure: carry nothing, unless a holding cost says the site stocks.
         "coalesce((sv.storage_capacity * %(q)s)::bigint, "
-        "         CASE WHEN sv.holding_cost IS NULL THEN 0 ELSE -1 END) "
+        "         CASE WHEN sv.holding_cost IS NULL THEN 0 ELSE -1 END) AS storage "
         "FROM site_version sv JOIN site s ON s.id = sv.site_id "
-        "WHERE sv.batch_id = %(b)s ORDER BY sv.site_id",
+        "WHERE sv.batch_id = %(b)s",
         params,
-        ["site_id", "code", "kind", "throughput", "handling", "holding", "storage"],
+        ints=["site_id", "throughput", "handling", "holding", "storage"],
+        texts=["code", "kind"],
+        order_by="site_id",
     )
-    site_id = sites["site_id"].to_numpy(np.int64)
+    site_id = sites["site_id"]
     n = site_id.shape[0]
-    kind = sites["kind"].map(KIND_CODES).to_numpy(np.int8)
+    kind = np.array([KIND_CODES[k] for k in sites["kind"]], dtype=np.int8)
 
     def site_index(ids: np.ndarray) -> np.ndarray:
         return np.searchsorted(site_id, ids)
 
-    supply_rows = copy_frame(
+    supply_rows = fetch_columns(
         conn,
-        "SELECT site_id, (quantity * %(q)s)::bigint FROM supply "
+        "SELECT site_id, (quantity * %(q)s)::bigint AS quantity FROM supply "
         "WHERE batch_id = %(b)s AND period_id = %(p)s",
         params,
-        ["site_id", "quantity"],
+        ints=["site_id", "quantity"],
     )
-    demand_rows = copy_frame(
+    demand_rows = fetch_columns(
         conn,
-        "SELECT site_id, (quantity * %(q)s)::bigint, coalesce((shortage_penalty * %(c)s)::bigint, -1) "
+        "SELECT site_id, (quantity * %(q)s)::bigint AS quantity, "
+        "coalesce((shortage_penalty * %(c)s)::bigint, -1) AS penalty "
         "FROM demand WHERE batch_id = %(b)s AND period_id = %(p)s",
         params,
-        ["site_id", "quantity", "penalty"],
+        ints=["site_id", "quantity", "penalty"],
     )
-    lanes = copy_frame(
+    # The week's rates alone (an index range of lane_rate) and the lane
+    # registry beside them: cheaper than a join of the two. Sorting the
+    # arrays on the id in numpy spares PostgreSQL a sort.
+    rates = fetch_columns(
         conn,
-        "SELECT lr.lane_id, l.origin_id, l.destination_id, l.mode, "
-        "(lr.unit_cost * %(c)s)::bigint, coalesce((lr.capacity * %(q)s)::bigint, -1), "
-        "(lr.min_quantity * %(q)s)::bigint "
-        "FROM lane_rate lr JOIN lane l ON l.id = lr.lane_id "
-        "WHERE lr.batch_id = %(b)s AND lr.period_id = %(p)s ORDER BY lr.lane_id",
+        "SELECT lane_id, (unit_cost * %(c)s)::bigint AS cost, "
+        "coalesce((capacity * %(q)s)::bigint, -1) AS capacity, "
+        "(min_quantity * %(q)s)::bigint AS min "
+        "FROM lane_rate WHERE batch_id = %(b)s AND period_id = %(p)s",
         params,
-        ["lane_id", "origin", "destination", "mode", "cost", "capacity", "min"],
+        ints=["lane_id", "cost", "capacity", "min"],
+        order_by="lane_id",
     )
+    registry = fetch_columns(
+        conn,
+        "SELECT id, origin_id, destination_id, mode FROM lane",
+        {},
+        ints=["id", "origin_id", "destination_id"],
+        texts=["mode"],
+        order_by="id",
+    )
+    at = np.searchsorted(registry["id"], rates["lane_id"])
 
     supply = np.zeros(n, np.int64)
-    supply[site_index(supply_rows["site_id"].to_numpy(np.int64))] = supply_rows["quantity"].to_numpy(np.int64)
+    supply[site_index(supply_rows["site_id"])] = supply_rows["quantity"]
     demand = np.zeros(n, np.int64)
     penalty = np.full(n, NONE, np.int64)
-    d_idx = site_index(demand_rows["site_id"].to_numpy(np.int64))
-    demand[d_idx] = demand_rows["quantity"].to_numpy(np.int64)
-    penalty[d_idx] = demand_rows["penalty"].to_numpy(np.int64)
+    d_idx = site_index(demand_rows["site_id"])
+    demand[d_idx] = demand_rows["quantity"]
+    penalty[d_idx] = demand_rows["penalty"]
 
     week = WeekData(
         site_kind=kind,
         supply=supply,
         demand=demand,
         shortage_penalty=penalty,
-        throughput_capacity=sites["throughput"].to_numpy(np.int64),
-        handling_cost=sites["handling"].to_numpy(np.int64),
-        lane_origin=site_index(lanes["origin"].to_numpy(np.int64)),
-        lane_destination=site_index(lanes["destination"].to_numpy(np.int64)),
-        lane_cost=lanes["cost"].to_numpy(np.int64),
-        lane_capacity=lanes["capacity"].to_numpy(np.int64),
-        lane_min=lanes["min"].to_numpy(np.int64),
-        holding_cost=sites["holding"].to_numpy(np.int64),
-        storage_capacity=sites["storage"].to_numpy(np.int64),
+        throughput_capacity=sites["throughput"],
+        handling_cost=sites["handling"],
+        lane_origin=site_index(registry["origin_id"][at]),
+        lane_destination=site_index(registry["destination_id"][at]),
+        lane_cost=rates["cost"],
+        lane_capacity=rates["capacity"],
+        lane_min=rates["min"],
+        holding_cost=sites["holding"],
+        storage_capacity=sites["storage"],
     )
     return Snapshot(
         period_id=period_id,
@@ -308,10 +396,10 @@ def read_snapshot(
         batch_id=batch_id,
         fingerprint=fingerprint,
         site_id=site_id,
-        site_code=sites["code"].to_numpy(object),
-        site_kind_name=sites["kind"].to_numpy(object),
-        lane_id=lanes["lane_id"].to_numpy(np.int64),
-        lane_mode=lanes["mode"].fillna("").to_numpy(object),
+        site_code=sites["code"],
+        site_kind_name=sites["kind"],
+        lane_id=rates["lane_id"],
+        lane_mode=registry["mode"][at],
         week=week,
     )
 

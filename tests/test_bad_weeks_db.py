@@ -409,3 +409,23 @@ def test_figure_with_more_decimals_than_the_precision_is_a_clear_error(
     more = invoke("solve", "--period", "2026-W40", option, "6")
     assert more.exit_code == 0, more.output
     assert runs(engine)[-1]["certificate_ok"] is True
+
+
+def test_trailing_zeros_past_the_precision_are_not_extra_decimals(engine: sa.Engine, write_folder) -> None:
+    # "2.500000" is 2.5 (common practice, no source: trailing zeros carry no
+    # value). PostgreSQL keeps the display scale 6, which the cheap scan of
+    # the precision check cannot clear at 4 decimals; the exact test must.
+    files = bad_week(
+        "2026-W40,P1,W1,road,2.500000,,\n"
+        "2026-W40,W1,C1,road,1,,\n"
+        "2026-W40,P1,W2,road,2,,\n"
+        "2026-W40,W2,C2,road,1.0000000,,\n"
+    )
+    files["demand.csv"] = "period,site,quantity\n2026-W40,C1,50.000\n2026-W40,C2,10\n"
+    load(write_folder(files))
+    result = planner("solve", "--period", "2026-W40")
+    assert result.returncode == 0, result.stderr
+    (run,) = runs(engine)
+    assert run["status"] == "optimal" and run["certificate_ok"] is True
+    # By hand: 50 x (2.5 + 1) + 10 x (2 + 1).
+    assert run["primal_cost"] == Decimal("205")
