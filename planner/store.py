@@ -1,8 +1,11 @@
 """Persist a run: one ``solve_run`` row plus its flows and site prices, in one transaction.
 
-Bulk rows go in with PostgreSQL COPY. Scaled integers are written as exact
-decimal literals in scientific notation (``123456e-4`` is the NUMERIC
-``12.3456``), so nothing is rounded between the solver and the table.
+Bulk rows go in with PostgreSQL COPY. The per-lane flows and the stock rows,
+the large tables, go in binary (:mod:`planner.pgbinary`: NUMERIC digits built
+by numpy from the scaled integers); the per-site prices, with their reason
+texts, as text, where scaled integers are written as exact decimal literals
+in scientific notation (``123456e-4`` is the NUMERIC ``12.3456``). Either
+way nothing is rounded between the solver and the table.
 """
 
 from __future__ import annotations
@@ -16,6 +19,7 @@ from sqlalchemy import Connection, text
 from planner.duals import UNLIMITED
 from planner.instance import ArcKind, Instance, SiteKind
 from planner.optimize import Outcome, shortage_units, spare_units
+from planner.pgbinary import Column, copy_binary
 from planner.snapshot import Scaling
 
 NULL = "\\N"
@@ -169,20 +173,21 @@ def store_results(
     lane_db = np.asarray(lane_ids)[l_idx]
     period_db = np.asarray(period_ids)[t_idx]
     binding = (~inst.unlimited[arcs]) & (flow[arcs] >= inst.upper[arcs])
-    m = arcs.shape[0]
-    _copy_rows(
-        conn,
-        "run_flow",
-        ["run_id", "period_id", "lane_id", "flow", "reduced_cost", "capacity_value"],
-        [
-            [run] * m,
-            list(map(str, period_db.tolist())),
-            list(map(str, lane_db.tolist())),
-            decimal_text(flow[arcs], qd),
-            decimal_text(reduced[arcs], cd),
-            _with_nulls(decimal_text(cap_value[arcs], cd), binding),
-        ],
-    )
+    raw = conn.connection.driver_connection
+    with raw.cursor() as cur:
+        copy_binary(
+            cur,
+            "run_flow",
+            ["run_id", "period_id", "lane_id", "flow", "reduced_cost", "capacity_value"],
+            [
+                Column("int8", np.full(arcs.shape[0], run_id, dtype=np.int64)),
+                Column("int4", period_db),
+                Column("int4", lane_db),
+                Column("numeric", flow[arcs], qd),
+                Column("numeric", reduced[arcs], cd),
+                Column("numeric", cap_value[arcs], cd, present=binding),
+            ],
+        )
 
     # Prices, ranges and per-site figures for every site of every period.
     nodes = inst.site_node.reshape(-1)
@@ -230,20 +235,20 @@ def store_results(
     if stock_arcs.shape[0]:
         capped = ~inst.unlimited[stock_arcs]
         full = capped & (flow[stock_arcs] >= inst.upper[stock_arcs])
-        s = stock_arcs.shape[0]
-        _copy_rows(
-            conn,
-            "run_stock",
-            ["run_id", "period_id", "site_id", "stock", "holding_cost", "storage_value"],
-            [
-                [run] * s,
-                list(map(str, np.asarray(period_ids)[inst.arc_period[stock_arcs]].tolist())),
-                list(map(str, np.asarray(site_ids)[inst.arc_ref[stock_arcs]].tolist())),
-                decimal_text(flow[stock_arcs], qd),
-                decimal_text(inst.cost[stock_arcs], cd),
-                _with_nulls(decimal_text(cap_value[stock_arcs], cd), full),
-            ],
-        )
+        with raw.cursor() as cur:
+            copy_binary(
+                cur,
+                "run_stock",
+                ["run_id", "period_id", "site_id", "stock", "holding_cost", "storage_value"],
+                [
+                    Column("int8", np.full(stock_arcs.shape[0], run_id, dtype=np.int64)),
+                    Column("int4", np.asarray(period_ids)[inst.arc_period[stock_arcs]]),
+                    Column("int4", np.asarray(site_ids)[inst.arc_ref[stock_arcs]]),
+                    Column("numeric", flow[stock_arcs], qd),
+                    Column("numeric", inst.cost[stock_arcs], cd),
+                    Column("numeric", cap_value[stock_arcs], cd, present=full),
+                ],
+            )
 
 
 HIGH_REASON = (
