@@ -173,21 +173,11 @@ def store_results(
     lane_db = np.asarray(lane_ids)[l_idx]
     period_db = np.asarray(period_ids)[t_idx]
     binding = (~inst.unlimited[arcs]) & (flow[arcs] >= inst.upper[arcs])
-    raw = conn.connection.driver_connection
-    with raw.cursor() as cur:
-        copy_binary(
-            cur,
-            "run_flow",
-            ["run_id", "period_id", "lane_id", "flow", "reduced_cost", "capacity_value"],
-            [
-                Column("int8", np.full(arcs.shape[0], run_id, dtype=np.int64)),
-                Column("int4", period_db),
-                Column("int4", lane_db),
-                Column("numeric", flow[arcs], qd),
-                Column("numeric", reduced[arcs], cd),
-                Column("numeric", cap_value[arcs], cd, present=binding),
-            ],
-        )
+    _copy_figures(
+        conn, "run_flow", ["run_id", "period_id", "lane_id", "flow", "reduced_cost", "capacity_value"],
+        run_id, period_db, lane_db,
+        [(flow[arcs], qd, None), (reduced[arcs], cd, None), (cap_value[arcs], cd, binding)],
+    )
 
     # Prices, ranges and per-site figures for every site of every period.
     nodes = inst.site_node.reshape(-1)
@@ -235,20 +225,27 @@ def store_results(
     if stock_arcs.shape[0]:
         capped = ~inst.unlimited[stock_arcs]
         full = capped & (flow[stock_arcs] >= inst.upper[stock_arcs])
-        with raw.cursor() as cur:
-            copy_binary(
-                cur,
-                "run_stock",
-                ["run_id", "period_id", "site_id", "stock", "holding_cost", "storage_value"],
-                [
-                    Column("int8", np.full(stock_arcs.shape[0], run_id, dtype=np.int64)),
-                    Column("int4", np.asarray(period_ids)[inst.arc_period[stock_arcs]]),
-                    Column("int4", np.asarray(site_ids)[inst.arc_ref[stock_arcs]]),
-                    Column("numeric", flow[stock_arcs], qd),
-                    Column("numeric", inst.cost[stock_arcs], cd),
-                    Column("numeric", cap_value[stock_arcs], cd, present=full),
-                ],
-            )
+        _copy_figures(
+            conn, "run_stock", ["run_id", "period_id", "site_id", "stock", "holding_cost", "storage_value"],
+            run_id,
+            np.asarray(period_ids)[inst.arc_period[stock_arcs]],
+            np.asarray(site_ids)[inst.arc_ref[stock_arcs]],
+            [(flow[stock_arcs], qd, None), (inst.cost[stock_arcs], cd, None), (cap_value[stock_arcs], cd, full)],
+        )
+
+
+def _copy_figures(conn, table, names, run_id, period_db, ref_db, figures) -> None:
+    """Binary COPY of ``(run, period, lane or site, figures...)`` rows.
+
+    ``figures`` are ``(scaled integers, decimals, present or None)`` per NUMERIC column.
+    """
+    columns = [
+        Column("int8", np.full(np.asarray(ref_db).shape[0], run_id, dtype=np.int64)),
+        Column("int4", period_db),
+        Column("int4", ref_db),
+    ] + [Column("numeric", values, decimals, present=present) for values, decimals, present in figures]
+    with conn.connection.driver_connection.cursor() as cur:
+        copy_binary(cur, table, names, columns)
 
 
 HIGH_REASON = (
