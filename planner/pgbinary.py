@@ -117,6 +117,8 @@ def _field_bytes(column: Column, rows: slice) -> np.ndarray:
         out["dscale"] = column.decimals
         out["digits"] = digits
     else:
+        if column.kind == "int4" and n and (values.min() < -(2**31) or values.max() >= 2**31):
+            raise ValueError("a value does not fit a 32-bit integer column")
         dtype = np.dtype([("len", ">i4"), ("value", ">i8" if column.kind == "int8" else ">i4")])
         out = np.zeros(n, dtype=dtype)
         out["value"] = values

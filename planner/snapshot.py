@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import hashlib
 import io
+from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -104,8 +105,8 @@ def fetch_columns(
     query: str,
     params: dict,
     *,
-    ints: list[str],
-    texts: list[str] = (),
+    ints: Sequence[str],
+    texts: Sequence[str] = (),
     order_by: str | None = None,
 ) -> dict[str, np.ndarray]:
     """The rows of ``query`` as one array per named column, in one round trip.

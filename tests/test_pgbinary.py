@@ -97,6 +97,9 @@ def test_column_rejects_unknown_kinds_and_decimals():
         Column("float8", np.zeros(1))
     with pytest.raises(ValueError):
         Column("numeric", np.zeros(1, dtype=np.int64), decimals=13)
+    # An id past 32 bits must not wrap around silently.
+    with pytest.raises(ValueError, match="32-bit"):
+        pgbinary.encode_rows([Column("int4", np.array([2**31]))])
 
 
 def test_fetch_columns_returns_aligned_integer_and_text_columns(engine):
