@@ -259,13 +259,15 @@ class _ShortestPaths:
 
     def __init__(self, n, tail, head, weight, capacity, source):
         key = tail.astype(np.int64) * n + head
-        order = np.lexsort((weight, key))
+        # Group the parallel arcs (a stable sort on one key is much cheaper
+        # than a two-key lexsort), then take each group's least weight.
+        order = np.argsort(key, kind="stable")
         key_s, w_s, cap_s = key[order], weight[order], capacity[order]
         first = np.ones(key_s.shape[0], dtype=bool)
         first[1:] = key_s[1:] != key_s[:-1]
         group = np.cumsum(first) - 1
         starts = np.flatnonzero(first)
-        w_min = w_s[starts]
+        w_min = np.minimum.reduceat(w_s, starts) if starts.shape[0] else w_s[:0]
         tied = w_s == w_min[group]
         # Sum tied capacities without wrapping int64: five or more tied
         # unlimited arcs (modes of one lane) would overflow a clipped sum, so
@@ -281,7 +283,9 @@ class _ShortestPaths:
         else:
             cap = cap_finite[:0]
         self.key = key_s[starts]
-        self.arc = order[starts]  # residual arc index of the least-weight arc
+        # Residual arc index of each group's first least-weight arc.
+        tied_at = np.flatnonzero(tied)
+        self.arc = order[tied_at[np.searchsorted(tied_at, starts)]]
         self.weight = w_min
         self.cap = cap
         self.n = n
