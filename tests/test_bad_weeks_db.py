@@ -152,8 +152,7 @@ def week_lp(files: dict[str, str], *, with_minimums: bool = True):
 def test_lane_minimums_and_modes_match_highs_with_an_exact_certificate(
     engine: sa.Engine, write_folder
 ) -> None:
-    load(write_folder(MINIMUM_WEEK))
-    solved = planner("solve", "--period", "2026-W40")
+    solved = solve_week(write_folder, MINIMUM_WEEK)
     assert solved.returncode == 0, solved.stderr
 
     (run,) = runs(engine)
@@ -238,6 +237,12 @@ def bad_week(lanes: str) -> dict[str, str]:
     }
 
 
+def solve_week(write_folder, files: dict[str, str]) -> subprocess.CompletedProcess:
+    """Load ``files`` and run ``planner solve`` on their week, 2026-W40."""
+    load(write_folder(files))
+    return planner("solve", "--period", "2026-W40")
+
+
 def assert_clean_failure(result: subprocess.CompletedProcess) -> None:
     """Exit code 1 (a week did not end optimal) and a message, never a stack trace."""
     assert result.returncode == 1, (result.stdout, result.stderr)
@@ -248,17 +253,15 @@ def assert_clean_failure(result: subprocess.CompletedProcess) -> None:
 def test_infeasible_week_names_customer_lane_and_shortfall(engine: sa.Engine, write_folder) -> None:
     # By hand: C1 needs 50 and only P1->W1 road (cap 30) leads to it, so 20
     # units cannot be served; C2 is served by W2.
-    load(
-        write_folder(
-            bad_week(
-                "2026-W40,P1,W1,road,2,30,\n"
-                "2026-W40,W1,C1,road,1,,\n"
-                "2026-W40,P1,W2,road,2,,\n"
-                "2026-W40,W2,C2,road,1,,\n"
-            )
-        )
+    result = solve_week(
+        write_folder,
+        bad_week(
+            "2026-W40,P1,W1,road,2,30,\n"
+            "2026-W40,W1,C1,road,1,,\n"
+            "2026-W40,P1,W2,road,2,,\n"
+            "2026-W40,W2,C2,road,1,,\n"
+        ),
     )
-    result = planner("solve", "--period", "2026-W40")
     assert_clean_failure(result)
 
     (run,) = runs(engine)
@@ -278,17 +281,15 @@ def test_infeasible_week_names_the_lane_minimum_that_cannot_be_met(
     engine: sa.Engine, write_folder
 ) -> None:
     # By hand: W2->C2 must carry 40 units but C2 takes 10 and has no lane on.
-    load(
-        write_folder(
-            bad_week(
-                "2026-W40,P1,W1,road,2,,\n"
-                "2026-W40,W1,C1,road,1,,\n"
-                "2026-W40,P1,W2,road,2,,\n"
-                "2026-W40,W2,C2,road,1,,40\n"
-            )
-        )
+    result = solve_week(
+        write_folder,
+        bad_week(
+            "2026-W40,P1,W1,road,2,,\n"
+            "2026-W40,W1,C1,road,1,,\n"
+            "2026-W40,P1,W2,road,2,,\n"
+            "2026-W40,W2,C2,road,1,,40\n"
+        ),
     )
-    result = planner("solve", "--period", "2026-W40")
     assert_clean_failure(result)
     (run,) = runs(engine)
     assert run["status"] == "infeasible"
@@ -298,18 +299,16 @@ def test_infeasible_week_names_the_lane_minimum_that_cannot_be_met(
 def test_unbounded_week_names_the_lanes_of_the_cycle(engine: sa.Engine, write_folder) -> None:
     # By hand: W1->W2 road (-3) and W2->W1 rail (+1), both without capacity,
     # earn 2 per unit sent round them.
-    load(
-        write_folder(
-            bad_week(
-                "2026-W40,P1,W1,road,2,,\n"
-                "2026-W40,W1,C1,road,1,,\n"
-                "2026-W40,W1,W2,road,-3,,\n"
-                "2026-W40,W2,W1,rail,1,,\n"
-                "2026-W40,W2,C2,road,1,,\n"
-            )
-        )
+    result = solve_week(
+        write_folder,
+        bad_week(
+            "2026-W40,P1,W1,road,2,,\n"
+            "2026-W40,W1,C1,road,1,,\n"
+            "2026-W40,W1,W2,road,-3,,\n"
+            "2026-W40,W2,W1,rail,1,,\n"
+            "2026-W40,W2,C2,road,1,,\n"
+        ),
     )
-    result = planner("solve", "--period", "2026-W40")
     assert_clean_failure(result)
     (run,) = runs(engine)
     assert run["status"] == "unbounded"
@@ -324,17 +323,15 @@ def test_overflow_week_names_the_column_and_a_precision_that_fits(
 ) -> None:
     # 10^14 per unit at 4 decimals is 10^18 scaled; times the ~200-unit bound
     # of the lane it is far beyond 2^62.
-    load(
-        write_folder(
-            bad_week(
-                "2026-W40,P1,W1,road,2,,\n"
-                "2026-W40,W1,C1,road,100000000000000,,\n"
-                "2026-W40,P1,W2,road,2,,\n"
-                "2026-W40,W2,C2,road,1,,\n"
-            )
-        )
+    result = solve_week(
+        write_folder,
+        bad_week(
+            "2026-W40,P1,W1,road,2,,\n"
+            "2026-W40,W1,C1,road,100000000000000,,\n"
+            "2026-W40,P1,W2,road,2,,\n"
+            "2026-W40,W2,C2,road,1,,\n"
+        ),
     )
-    result = planner("solve", "--period", "2026-W40")
     assert_clean_failure(result)
     (run,) = runs(engine)
     assert run["status"] == "failed"
@@ -355,17 +352,15 @@ def test_figure_beyond_int64_once_scaled_is_refused_naming_column_and_lane(
 ) -> None:
     # 10^16 per unit at 4 decimals is 10^20 scaled: the figure itself does not
     # fit int64. It is refused when the week is read, before any cast.
-    load(
-        write_folder(
-            bad_week(
-                "2026-W40,P1,W1,road,2,,\n"
-                "2026-W40,W1,C1,road,10000000000000000,,\n"
-                "2026-W40,P1,W2,road,2,,\n"
-                "2026-W40,W2,C2,road,1,,\n"
-            )
-        )
+    result = solve_week(
+        write_folder,
+        bad_week(
+            "2026-W40,P1,W1,road,2,,\n"
+            "2026-W40,W1,C1,road,10000000000000000,,\n"
+            "2026-W40,P1,W2,road,2,,\n"
+            "2026-W40,W2,C2,road,1,,\n"
+        ),
     )
-    result = planner("solve", "--period", "2026-W40")
     assert_clean_failure(result)
     assert "lanes.csv column unit_cost: value 10000000000000000 does not fit 64-bit integers" in result.stderr
     assert "(lane W1->C1 road)" in result.stderr
@@ -398,8 +393,7 @@ def test_figure_with_more_decimals_than_the_precision_is_a_clear_error(
         "2026-W40,W2,C2,road,1,,\n"
     )
     files["demand.csv"] = f"period,site,quantity\n2026-W40,C1,{demand_quantity}\n2026-W40,C2,10\n"
-    load(write_folder(files))
-    result = planner("solve", "--period", "2026-W40")
+    result = solve_week(write_folder, files)
     assert_clean_failure(result)
     assert column in result.stderr
     assert option in result.stderr
@@ -422,8 +416,7 @@ def test_trailing_zeros_past_the_precision_are_not_extra_decimals(engine: sa.Eng
         "2026-W40,W2,C2,road,1.0000000,,\n"
     )
     files["demand.csv"] = "period,site,quantity\n2026-W40,C1,50.000\n2026-W40,C2,10\n"
-    load(write_folder(files))
-    result = planner("solve", "--period", "2026-W40")
+    result = solve_week(write_folder, files)
     assert result.returncode == 0, result.stderr
     (run,) = runs(engine)
     assert run["status"] == "optimal" and run["certificate_ok"] is True
