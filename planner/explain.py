@@ -187,7 +187,7 @@ def explain_site(engine, site: str, period: str, run_id: int | None = None) -> E
     from planner.duals import feasible_potential, price_ranges, residual_graph
     from planner.errors import PlannerError
     from planner.instance import assemble_instance
-    from planner.snapshot import Scaling, copy_frame, read_snapshot
+    from planner.snapshot import Scaling, fetch_columns, read_snapshot
 
     with engine.connect() as conn:
         row = conn.execute(
@@ -208,31 +208,32 @@ def explain_site(engine, site: str, period: str, run_id: int | None = None) -> E
         scaling = Scaling(cd, qd)
         snap = read_snapshot(conn, period, scaling, batch_id=batch)
         q = scaling.quantity_scale
-        flows = copy_frame(
+        flows = fetch_columns(
             conn,
-            "SELECT lane_id, (flow * %(q)s)::bigint FROM run_flow WHERE run_id = %(r)s",
+            "SELECT lane_id, (flow * %(q)s)::bigint AS flow FROM run_flow WHERE run_id = %(r)s",
             {"q": q, "r": run},
-            ["lane_id", "flow"],
+            ints=["lane_id", "flow"],
         )
-        sites = copy_frame(
+        sites = fetch_columns(
             conn,
-            "SELECT site_id, (coalesce(spare, 0) * %(q)s)::bigint, "
-            "(coalesce(shortage, 0) * %(q)s)::bigint, (coalesce(throughput_flow, 0) * %(q)s)::bigint "
+            "SELECT site_id, (coalesce(spare, 0) * %(q)s)::bigint AS spare, "
+            "(coalesce(shortage, 0) * %(q)s)::bigint AS shortage, "
+            "(coalesce(throughput_flow, 0) * %(q)s)::bigint AS throughput "
             "FROM run_site_price WHERE run_id = %(r)s",
             {"q": q, "r": run},
-            ["site_id", "spare", "shortage", "throughput"],
+            ints=["site_id", "spare", "shortage", "throughput"],
         )
     matches = np.flatnonzero(snap.site_code == site)
     if matches.shape[0] == 0:
         raise PlannerError(f"site {site} is not in the snapshot of {period}; check the site code")
     inst = assemble_instance(snap.week, cost_scale=scaling.cost_scale, quantity_scale=q)
     lane_flow = np.zeros(snap.lane_id.shape[0], np.int64)
-    lane_flow[np.searchsorted(snap.lane_id, flows["lane_id"].to_numpy(np.int64))] = flows["flow"].to_numpy(np.int64)
-    per_site = np.searchsorted(snap.site_id, sites["site_id"].to_numpy(np.int64))
+    lane_flow[np.searchsorted(snap.lane_id, flows["lane_id"])] = flows["flow"]
+    per_site = np.searchsorted(snap.site_id, sites["site_id"])
 
     def site_values(column: str) -> np.ndarray:
         out = np.zeros(snap.site_id.shape[0], np.int64)
-        out[per_site] = sites[column].to_numpy(np.int64)
+        out[per_site] = sites[column]
         return out
 
     flow = stored_flow(inst, lane_flow, site_values("spare"), site_values("shortage"), site_values("throughput"))

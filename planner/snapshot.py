@@ -8,12 +8,10 @@ chosen precision is refused with its table, key and value.
 from __future__ import annotations
 
 import hashlib
-import io
 from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
-import pandas as pd
 from sqlalchemy import Connection, text
 
 from planner.errors import PlannerError
@@ -78,26 +76,6 @@ def run_fingerprint(snapshot_fingerprint: str, scaling: Scaling) -> str:
     """Fingerprint of a run's input: the snapshot's content and the precision used."""
     text_ = f"{snapshot_fingerprint}|cost_decimals={scaling.cost_decimals}|quantity_decimals={scaling.quantity_decimals}"
     return hashlib.sha256(text_.encode()).hexdigest()
-
-
-def copy_frame(conn: Connection, query: str, params: dict, columns: list[str]) -> pd.DataFrame:
-    """Run ``query`` through ``COPY ... TO STDOUT`` and parse it with pandas.
-
-    ``params`` are bound by psycopg (never formatted into the SQL text).
-    """
-    raw = conn.connection.driver_connection
-    buf = io.BytesIO()
-    with raw.cursor() as cur:
-        with cur.copy(f"COPY ({query}) TO STDOUT", params) as copy:
-            for block in copy:
-                buf.write(block)
-    buf.seek(0)
-    if buf.getbuffer().nbytes == 0:
-        return pd.DataFrame({c: pd.Series(dtype=object) for c in columns})
-    return pd.read_csv(
-        buf, sep="\t", header=None, names=columns, na_values=["\\N"], keep_default_na=False,
-        dtype=object,
-    )
 
 
 def fetch_columns(
