@@ -140,14 +140,13 @@ def encode_rows(columns: list[Column], rows: slice = slice(None)) -> bytes:
     n = blocks[0].shape[0] if blocks else 0
     count = np.full(n, len(columns), dtype=">i2").view(np.uint8).reshape(n, 2)
     matrix = np.hstack([count, *blocks])
-    nullable = [c for c in columns if c.present is not None]
-    if not any((~np.asarray(c.present)[rows]).any() for c in nullable):
+    nulls = [None if c.present is None else ~np.asarray(c.present)[rows] for c in columns]
+    if not any(null is not None and null.any() for null in nulls):
         return matrix.tobytes()
     keep = np.ones(matrix.shape, dtype=bool)
     offset = 2
-    for column, block in zip(columns, blocks):
-        if column.present is not None:
-            null = ~np.asarray(column.present)[rows]
+    for null, block in zip(nulls, blocks):
+        if null is not None:
             keep[np.ix_(null, np.arange(offset + 4, offset + block.shape[1]))] = False
         offset += block.shape[1]
     return matrix[keep].tobytes()
