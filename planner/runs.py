@@ -18,7 +18,7 @@ from sqlalchemy import Engine, text
 from planner.errors import PlannerError
 from planner.instance import assemble_instance
 from planner.optimize import FAILED, Outcome, optimize, shortage_units
-from planner.snapshot import Scaling, Snapshot, current_batch, read_snapshot, run_fingerprint
+from planner.snapshot import Scaling, Snapshot, current_batch, read_lanes, read_snapshot, run_fingerprint
 from planner.store import RunKey, insert_run, store_results, to_decimal
 
 
@@ -289,7 +289,8 @@ def horizon_snapshots(conn, periods: list[str], scaling: Scaling) -> tuple[list[
     """
     from planner.instance import NONE, WeekData
 
-    snaps = [read_snapshot(conn, p, scaling) for p in periods]
+    registry = read_lanes(conn)
+    snaps = [read_snapshot(conn, p, scaling, lanes=registry) for p in periods]
     site_id = np.unique(np.concatenate([s.site_id for s in snaps]))
     lane_id = np.unique(np.concatenate([s.lane_id for s in snaps]))
     n, m = site_id.shape[0], lane_id.shape[0]

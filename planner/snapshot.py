@@ -258,8 +258,34 @@ def _check_precision(conn: Connection, period_id: int, batch_id: int, scaling: S
         raise PlannerError("; ".join(problems))
 
 
+def read_lanes(conn: Connection) -> dict[str, np.ndarray]:
+    """The lane registry: ``id`` (sorted), ``origin_id``, ``destination_id`` and ``mode``.
+
+    Lanes are only ever added, never changed, so one read can serve the
+    snapshots of several periods (``read_snapshot(..., lanes=...)``).
+    """
+    return fetch_columns(
+        conn,
+        "SELECT id, origin_id, destination_id, mode FROM lane",
+        {},
+        ints=["id", "origin_id", "destination_id"],
+        texts=["mode"],
+        order_by="id",
+    )
+
+
+def _holds(ids: np.ndarray, at: np.ndarray, wanted: np.ndarray) -> bool:
+    """Whether the sorted ``ids`` hold every ``wanted`` id at the positions ``at``."""
+    inside = at < ids.shape[0]
+    return bool(inside.all() and (ids[at] == wanted).all())
+
+
 def read_snapshot(
-    conn: Connection, period: str, scaling: Scaling = Scaling(), batch_id: int | None = None
+    conn: Connection,
+    period: str,
+    scaling: Scaling = Scaling(),
+    batch_id: int | None = None,
+    lanes: dict[str, np.ndarray] | None = None,
 ) -> Snapshot:
     """Assemble the current snapshot of ``period`` as scaled integer arrays.
 
@@ -271,6 +297,9 @@ def read_snapshot(
     scaling : Scaling
     batch_id : int, optional
         Read the period as that load batch left it instead of the current snapshot.
+    lanes : dict, optional
+        The lane registry from :func:`read_lanes`, read once for several
+        periods; read here when None, or again when it lacks a lane of the week.
 
     Returns
     -------
@@ -336,15 +365,12 @@ def read_snapshot(
         ints=["lane_id", "cost", "capacity", "min"],
         order_by="lane_id",
     )
-    registry = fetch_columns(
-        conn,
-        "SELECT id, origin_id, destination_id, mode FROM lane",
-        {},
-        ints=["id", "origin_id", "destination_id"],
-        texts=["mode"],
-        order_by="id",
-    )
+    registry = lanes if lanes is not None else read_lanes(conn)
     at = np.searchsorted(registry["id"], rates["lane_id"])
+    if not _holds(registry["id"], at, rates["lane_id"]):
+        # A lane loaded after ``lanes`` was read: read the registry afresh.
+        registry = read_lanes(conn)
+        at = np.searchsorted(registry["id"], rates["lane_id"])
 
     supply = np.zeros(n, np.int64)
     supply[site_index(supply_rows["site_id"])] = supply_rows["quantity"]

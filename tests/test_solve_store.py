@@ -30,7 +30,7 @@ from sqlalchemy import text
 
 from planner.ingest import load_folder
 from planner.runs import solve_period, solve_snapshot
-from planner.snapshot import Scaling, read_snapshot
+from planner.snapshot import Scaling, read_lanes, read_snapshot
 
 #: Default precision of a run (``--cost-decimals 4``, ``--quantity-decimals 0``).
 COST_DECIMALS = 4
@@ -389,6 +389,26 @@ def test_a_run_stores_every_lane_and_every_site_of_its_snapshot(engine, write_fo
             {"r": run_id},
         ).one()
     assert counts == (5, 5, 6, 6)
+
+
+def test_a_lane_registry_read_before_a_new_lane_was_loaded_is_read_again(
+    engine, write_folder, network_files
+):
+    load(engine, write_folder, network_files)
+    with engine.connect() as conn:
+        stale = read_lanes(conn)
+    # A second load opens a new lane P2->C3 in 2026-W41.
+    files = dict(network_files)
+    files["lanes.csv"] += "2026-W41,P2,C3,,4,,\n"
+    load(engine, write_folder, files)
+    with engine.connect() as conn:
+        fresh = read_snapshot(conn, "2026-W41")
+        shared = read_snapshot(conn, "2026-W41", lanes=stale)
+        assert conn.execute(text("SELECT count(*) FROM lane")).scalar_one() == stale["id"].shape[0] + 1
+    for name in ("lane_origin", "lane_destination"):
+        assert getattr(shared.week, name).tolist() == getattr(fresh.week, name).tolist()
+    assert shared.lane_labels().tolist() == fresh.lane_labels().tolist()
+    assert "P2->C3" in fresh.lane_labels().tolist()
 
 
 def test_tight_week_really_is_tight(engine, write_folder):
