@@ -1,15 +1,15 @@
 """Benchmark a 52-week linked horizon: prices and certificate against the bare solve.
 
-Generates a benchmark network (``planner.generate.benchmark_network``) of
+Generates a benchmark network (``planner.synthetic.benchmark_network``) of
 about 20,000 lanes and 2,000 customers over 52 consecutive weeks, gives its
 plants and warehouses a holding cost and a storage capacity so stock arcs link
 the weeks, scales it exactly (4 cost decimals, whole units, as ``Scaling()``)
 into one ``WeekData`` per week and builds the time-expanded instance in memory.
 Then it times, on that same instance,
 
-* the bare OR-Tools solve (``planner.solve.solve_flow``: building the solver's
+* the bare OR-Tools solve (``planner.core.solve.solve_flow``: building the solver's
   graph, solving, reading the flows), median of ``--repeat`` runs, and
-* ``planner.optimize.optimize``: the solve plus the feasible potential, the
+* ``planner.core.optimize.optimize``: the solve plus the feasible potential, the
   exact price ranges, reduced costs, capacity values and the certificate,
 
 and prints their ratio (target < 5). With ``--database-url`` it also loads
@@ -33,15 +33,16 @@ import numpy as np
 import pandas as pd
 import sqlalchemy as sa
 
-from planner import db
-from planner.generate import NetworkFrames, benchmark_network, write_folder
-from planner.horizon import time_expand
-from planner.instance import NONE, ArcKind, Instance, SiteKind, WeekData, scale_exact
-from planner.ingest import load_folder
-from planner.optimize import optimize
-from planner.runs import solve_horizon
-from planner.snapshot import Scaling
-from planner.solve import solve_flow
+from planner.core.network import ArcKind, Instance, time_expand
+from planner.core.optimize import optimize
+from planner.core.solve import solve_flow
+from planner.core.week import NONE, SiteKind, WeekData, scale_exact
+from planner.database import connect as db
+from planner.database.ingest import load_folder
+from planner.database.snapshot import Scaling
+from planner.runs.horizon import solve_horizon
+from planner.synthetic.benchmark_network import benchmark_network
+from planner.synthetic.frames import NetworkFrames, write_folder
 
 #: Fresh statistics after a large load, as autovacuum would gather them.
 ANALYZE_SNAPSHOT_TABLES = (

@@ -27,8 +27,9 @@ import psycopg
 from psycopg import sql
 from sqlalchemy.engine import make_url
 
-from planner.db import database_url, get_engine, masked_url, migrate
-from planner.ingest import load_folder
+from planner.database.connect import database_url, get_engine, masked_url
+from planner.database.ingest import load_folder
+from planner.database.migrate import migrate
 
 PLANTS, WAREHOUSES, CUSTOMERS = 300, 700, 50_000
 PLANT_LANES, LANES_PER_CUSTOMER = 200_000, 6

@@ -29,7 +29,9 @@ import psycopg
 import sqlalchemy as sa
 from psycopg import sql
 
-from planner import db, report
+from planner.database import connect as db
+from planner.database.migrate import migrate
+from planner.reports import queries as report
 
 BENCH_DATABASE = "planner_bench_views"
 PLANTS, WAREHOUSES, CUSTOMERS = 200, 800, 50_000
@@ -242,7 +244,7 @@ def main() -> None:
             admin.execute(sql.SQL("DROP DATABASE IF EXISTS {} WITH (FORCE)").format(sql.Identifier(name)))
             admin.execute(sql.SQL("CREATE DATABASE {}").format(sql.Identifier(name)))
         engine = db.get_engine(bench_url)
-        db.migrate(engine)
+        migrate(engine)
         engine.dispose()
         lanes = PLANTS * LANES_PER_PLANT + CUSTOMERS * args.lanes_per_customer
         print(f"filling {name}: {args.weeks} weeks x {lanes:,} lanes")

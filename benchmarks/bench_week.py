@@ -16,13 +16,14 @@ import tempfile
 import time
 from pathlib import Path
 
-from planner import db
-from planner.generate import benchmark_network, write_folder
-from planner.ingest import load_folder
-from planner.instance import assemble_instance
-from planner.runs import solve_period
-from planner.snapshot import Scaling, read_snapshot
-from planner.solve import solve_flow
+from planner.core.network import assemble_instance
+from planner.core.solve import solve_flow
+from planner.database import connect as db
+from planner.database.ingest import load_folder
+from planner.database.snapshot import Scaling, read_snapshot
+from planner.runs.weekly import solve_period
+from planner.synthetic.benchmark_network import benchmark_network
+from planner.synthetic.frames import write_folder
 
 
 def peak_rss_gib() -> float:

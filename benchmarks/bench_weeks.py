@@ -1,15 +1,15 @@
 """Benchmark many independent weeks solved in parallel, as ``planner solve --all`` does.
 
-Generates a benchmark network (``planner.generate.benchmark_network``) of
+Generates a benchmark network (``planner.synthetic.benchmark_network``) of
 about 100,000 lanes over 52 consecutive weeks, loads it into the database as
 one load batch (nothing is loaded when the same folder is already the latest
 batch), then
 
 1. reads every week's snapshot, builds its instance and times the bare
-   OR-Tools solve on it (``planner.solve.solve_flow``: building the solver's
+   OR-Tools solve on it (``planner.core.solve.solve_flow``: building the solver's
    graph, solving, reading the flows; median of ``--repeat`` solves), one
    week after the other in this process, and sums those times;
-2. times ``planner.schedule.solve_many(url, weeks, workers=2)``: every week
+2. times ``planner.runs.schedule.solve_many(url, weeks, workers=2)``: every week
    read from PostgreSQL, solved, priced, certified and stored by two worker
    processes, each week committed as it finishes;
 
@@ -31,13 +31,14 @@ from pathlib import Path
 
 import sqlalchemy as sa
 
-from planner import db
-from planner.generate import benchmark_network, write_folder
-from planner.ingest import load_folder
-from planner.instance import assemble_instance
-from planner.schedule import solve_many
-from planner.snapshot import Scaling, read_snapshot
-from planner.solve import solve_flow
+from planner.core.network import assemble_instance
+from planner.core.solve import solve_flow
+from planner.database import connect as db
+from planner.database.ingest import load_folder
+from planner.database.snapshot import Scaling, read_snapshot
+from planner.runs.schedule import solve_many
+from planner.synthetic.benchmark_network import benchmark_network
+from planner.synthetic.frames import write_folder
 
 
 def main() -> None:

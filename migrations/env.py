@@ -1,17 +1,17 @@
 """Alembic environment of the planner.
 
-The planner configures Alembic in code (see :func:`planner.db.alembic_config`), so no
-``alembic.ini`` is needed. :func:`planner.db.migrate` hands over an open connection in
+The planner configures Alembic in code (see :func:`planner.database.migrate.alembic_config`), so no
+``alembic.ini`` is needed. :func:`planner.database.migrate.migrate` hands over an open connection in
 ``config.attributes["connection"]`` so the upgrade runs inside the caller's transaction.
 Without one, the URL comes from the ``sqlalchemy.url`` option or, failing that, from
-:func:`planner.db.database_url` (``PLANNER_DATABASE_URL`` or the embedded server).
+:func:`planner.database.connect.database_url` (``PLANNER_DATABASE_URL`` or the embedded server).
 """
 
 from alembic import context
 from sqlalchemy import Connection, create_engine, pool
 
-from planner.db import database_url
-from planner.models import Base
+from planner.database.connect import database_url
+from planner.database.models import Base
 
 config = context.config
 target_metadata = Base.metadata

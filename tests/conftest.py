@@ -23,14 +23,14 @@ import sqlalchemy as sa
 from psycopg import sql
 from sqlalchemy.engine import make_url
 
-from planner.db import (
+from planner.database.connect import (
     DATABASE_URL_ENV,
     HOME_ENV,
     embedded_server_url,
     get_engine,
-    migrate,
     normalize_url,
 )
+from planner.database.migrate import migrate
 
 TEST_DATABASE_URL_ENV = "PLANNER_TEST_DATABASE_URL"
 

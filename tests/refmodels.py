@@ -1,6 +1,6 @@
 """Outside references for the functional core, and random planning weeks to feed them.
 
-The references solve the same :class:`planner.instance.Instance` with
+The references solve the same :class:`planner.core.network.Instance` with
 general-purpose libraries that share no code with the planner:
 
 * scipy's ``linprog`` with HiGHS, on the node-arc LP (one equality row per
@@ -27,16 +27,12 @@ from hypothesis import HealthCheck, settings
 from hypothesis import strategies as st
 from scipy.optimize import linprog
 
-from planner.duals import certify, feasible_potential, price_ranges, residual_graph
-from planner.instance import (
-    NONE,
-    ArcKind,
-    Instance,
-    SiteKind,
-    WeekData,
-    assemble_instance,
-)
-from planner.solve import OPTIMAL, solve_flow
+from planner.core.certificate import certify
+from planner.core.network import ArcKind, Instance, assemble_instance
+from planner.core.prices import price_ranges
+from planner.core.residual import feasible_potential, residual_graph
+from planner.core.solve import OPTIMAL, solve_flow
+from planner.core.week import NONE, SiteKind, WeekData
 
 #: Settings of the property tests: many examples, no per-example deadline
 #: (the first call pays for imports), no example database written into the tree.
@@ -185,7 +181,7 @@ def lagrangian_bound(inst: Instance, pi) -> int:
 
 
 def certified_dual_objective(inst: Instance, flow: np.ndarray, pi) -> int:
-    """The dual objective that :func:`planner.duals.certify` computes for any potential ``pi``."""
+    """The dual objective that :func:`planner.core.certificate.certify` computes for any potential ``pi``."""
     return certify(inst, flow, np.asarray(pi, dtype=np.int64)).dual_objective
 
 

@@ -25,8 +25,8 @@ from sqlalchemy.engine import make_url
 from typer.testing import CliRunner
 
 from planner.cli import app
-from planner.db import DATABASE_URL_ENV
-from planner.demo import price_movers
+from planner.database.connect import DATABASE_URL_ENV
+from planner.runs.demo import price_movers
 
 runner = CliRunner()
 

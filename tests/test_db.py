@@ -1,6 +1,5 @@
 """Database layer: URLs, the embedded server, migrations, constraints and the view."""
 
-import doctest
 from decimal import Decimal
 from pathlib import Path
 
@@ -10,23 +9,24 @@ from alembic import command
 from alembic.autogenerate import compare_metadata
 from alembic.runtime.migration import MigrationContext
 
-import planner.db
-from planner.db import (
+from planner.database.connect import (
     DATABASE_URL_ENV,
     HOME_ENV,
-    alembic_config,
-    current_revision,
     database_url,
-    ensure_schema,
     get_engine,
-    head_revision,
     masked_url,
-    migrate,
     normalize_url,
     raw_copy_connection,
 )
+from planner.database.migrate import (
+    alembic_config,
+    current_revision,
+    ensure_schema,
+    head_revision,
+    migrate,
+)
+from planner.database.models import Base
 from planner.errors import PlannerError
-from planner.models import Base
 
 TABLES = {
     "load_batch",
@@ -43,12 +43,6 @@ TABLES = {
     "run_site_price",
     "run_stock",
 }
-
-
-def test_doctests_run() -> None:
-    result = doctest.testmod(planner.db)
-    assert result.attempted > 0
-    assert result.failed == 0
 
 
 @pytest.mark.parametrize(

@@ -19,19 +19,20 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from planner.diagnose import describe_cycle, diagnose_infeasible, find_unbounded_cycle
-from planner.horizon import time_expand
-from planner.instance import (
-    NONE,
+from planner.core.diagnose import (
+    describe_cycle,
+    diagnose_infeasible,
+    find_unbounded_cycle,
+)
+from planner.core.network import (
     ArcKind,
     OverflowError_,
-    SiteKind,
-    WeekData,
     assemble_instance,
     check_int64,
-    scale_exact,
+    time_expand,
 )
-from planner.solve import INFEASIBLE, OPTIMAL, solve_flow
+from planner.core.solve import INFEASIBLE, OPTIMAL, solve_flow
+from planner.core.week import NONE, SiteKind, WeekData, scale_exact
 
 PLANT, WAREHOUSE, CUSTOMER = SiteKind.PLANT, SiteKind.WAREHOUSE, SiteKind.CUSTOMER
 

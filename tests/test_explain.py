@@ -1,4 +1,4 @@
-"""``planner explain`` and :func:`planner.explain.explain_site` on stored runs.
+"""``planner explain`` and :func:`planner.reports.explain.explain_site` on stored runs.
 
 The chain of a site is the cheapest residual path from SPARE that sets its
 ``price_high``; its unit costs must add up to the stored price. The hand-built
@@ -15,10 +15,10 @@ from sqlalchemy import text
 from typer.testing import CliRunner
 
 from planner.cli import app
+from planner.database.ingest import load_folder
 from planner.errors import PlannerError
-from planner.explain import explain_site
-from planner.ingest import load_folder
-from planner.runs import solve_period
+from planner.reports.explain import explain_site
+from planner.runs.weekly import solve_period
 
 runner = CliRunner()
 

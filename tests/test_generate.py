@@ -15,7 +15,9 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from planner.generate import (
+from planner.synthetic.benchmark_network import benchmark_network
+from planner.synthetic.demo_network import demo_network
+from planner.synthetic.frames import (
     DEMAND_COLUMNS,
     INVENTED_NAME,
     LANE_COLUMNS,
@@ -26,8 +28,6 @@ from planner.generate import (
     SITE_COLUMNS,
     SUPPLY_COLUMNS,
     NetworkFrames,
-    benchmark_network,
-    demo_network,
     write_folder,
 )
 
@@ -170,7 +170,7 @@ def test_frames_have_exactly_the_csv_columns(make) -> None:
 
 def test_columns_agree_with_the_loader() -> None:
     """The generator and the folder loader spell the same contract (schema.md)."""
-    from planner.ingest import FILE_COLUMNS
+    from planner.database.ingest import FILE_COLUMNS
 
     assert FILE_COLUMNS == {
         "sites.csv": SITE_COLUMNS,

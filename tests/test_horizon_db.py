@@ -25,7 +25,7 @@ from scipy.optimize import linprog
 from typer.testing import CliRunner
 
 from planner.cli import app
-from planner.schedule import stale_periods
+from planner.runs.schedule import stale_periods
 
 #: HiGHS answers in floats; the data have at most two decimals.
 TOLERANCE = 1e-6

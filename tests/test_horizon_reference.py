@@ -20,11 +20,13 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from scipy.optimize import linprog
 
-from planner.diagnose import find_unbounded_cycle
-from planner.duals import certify, feasible_potential, price_ranges, residual_graph
-from planner.horizon import time_expand
-from planner.instance import NONE, ArcKind, SiteKind, WeekData, assemble_instance
-from planner.solve import INFEASIBLE, OPTIMAL, solve_flow
+from planner.core.certificate import certify
+from planner.core.diagnose import find_unbounded_cycle
+from planner.core.network import ArcKind, assemble_instance, time_expand
+from planner.core.prices import price_ranges
+from planner.core.residual import feasible_potential, residual_graph
+from planner.core.solve import INFEASIBLE, OPTIMAL, solve_flow
+from planner.core.week import NONE, SiteKind, WeekData
 
 PLANT, WAREHOUSE, CUSTOMER = SiteKind.PLANT, SiteKind.WAREHOUSE, SiteKind.CUSTOMER
 

@@ -14,8 +14,8 @@ from typer.testing import CliRunner
 
 from planner.cli import app
 from planner.errors import PlannerError
-from planner.html_report import render_week_report, write_week_report
-from planner.report import week_report
+from planner.reports.html import render_week_report, write_week_report
+from planner.reports.queries import week_report
 from tests.test_views import solve_hand_network
 
 CHROMIUM = Path("/usr/bin/chromium")

@@ -14,10 +14,10 @@ import numpy as np
 import pytest
 import sqlalchemy as sa
 
-from planner import pgbinary
+from planner.database import pgbinary
+from planner.database.pgbinary import Column, copy_binary, numeric_digits
+from planner.database.snapshot import fetch_columns
 from planner.errors import PlannerError
-from planner.pgbinary import Column, copy_binary, numeric_digits
-from planner.snapshot import fetch_columns
 
 INT64_EDGES = [0, 1, -1, 9_999, 10_000, -10_000, 99_999_999, 2**63 - 1, -(2**63), -(2**63) + 1, 10**18]
 

@@ -15,9 +15,11 @@ import ot
 from hypothesis import assume, given
 from hypothesis import strategies as st
 
-from planner.duals import capacity_values, certify, reduced_costs
-from planner.instance import NONE, ArcKind, SiteKind, WeekData, assemble_instance
-from planner.solve import OPTIMAL
+from planner.core.certificate import certify
+from planner.core.network import ArcKind, assemble_instance
+from planner.core.prices import capacity_values, reduced_costs
+from planner.core.solve import OPTIMAL
+from planner.core.week import NONE, SiteKind, WeekData
 from tests.refmodels import (
     FLOAT_TOLERANCE,
     PROPERTY,

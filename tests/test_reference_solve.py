@@ -12,9 +12,9 @@ import ot
 from hypothesis import assume, given
 from hypothesis import strategies as st
 
-from planner.duals import certify
-from planner.instance import assemble_instance
-from planner.solve import OPTIMAL, exact_dot, solve_flow
+from planner.core.certificate import certify
+from planner.core.network import assemble_instance
+from planner.core.solve import OPTIMAL, exact_dot, solve_flow
 from tests.refmodels import (
     PROPERTY,
     analyse,

@@ -20,9 +20,9 @@ import sqlalchemy as sa
 from typer.testing import CliRunner
 
 from planner.cli import app
-from planner.generate import benchmark_network
-from planner.generate import write_folder as write_network
-from planner.schedule import LOCK_NAMESPACE
+from planner.runs.schedule import LOCK_NAMESPACE
+from planner.synthetic.benchmark_network import benchmark_network
+from planner.synthetic.frames import write_folder as write_network
 
 PLANNER = [sys.executable, "-m", "planner.cli"]
 
@@ -244,7 +244,7 @@ def test_solve_all_waits_for_a_week_that_resolve_holds(engine: sa.Engine, write_
     import threading
     import time
 
-    from planner.schedule import solve_many
+    from planner.runs.schedule import solve_many
 
     load(write_folder(network_files))
     url = engine.url.render_as_string(hide_password=False)

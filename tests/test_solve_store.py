@@ -28,9 +28,9 @@ import pytest
 from scipy.optimize import linprog
 from sqlalchemy import text
 
-from planner.ingest import load_folder
-from planner.runs import solve_period, solve_snapshot
-from planner.snapshot import Scaling, read_lanes, read_snapshot
+from planner.database.ingest import load_folder
+from planner.database.snapshot import Scaling, read_lanes, read_snapshot
+from planner.runs.weekly import solve_period, solve_snapshot
 
 #: Default precision of a run (``--cost-decimals 4``, ``--quantity-decimals 0``).
 COST_DECIMALS = 4

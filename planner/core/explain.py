@@ -1,4 +1,4 @@
-"""Why a site has its price: the chain of lanes the marginal unit travels.
+"""Why a site has its price: the chain of lanes the marginal unit travels (on arrays).
 
 A site's ``price_high`` is the length of the cheapest residual path from
 SPARE to the site. Following that path names every step the next unit would
@@ -13,8 +13,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from planner.duals import PriceRanges, Residual, marginal_path
-from planner.instance import ArcKind, Instance, NodeRole
+from planner.core.network import ArcKind, Instance, NodeRole
+from planner.core.prices import HIGH_REASON, PriceRanges, marginal_path
+from planner.core.residual import Residual
 
 
 @dataclass(frozen=True)
@@ -92,8 +93,9 @@ def explain_node(
 
     Examples
     --------
-    >>> from planner.instance import WeekData, assemble_instance
-    >>> from planner.optimize import optimize
+    >>> from planner.core.week import WeekData
+    >>> from planner.core.network import assemble_instance
+    >>> from planner.core.optimize import optimize
     >>> w = WeekData.from_arrays([0, 1, 2], [0, 1], [1, 2], [123_000, 298_000],
     ...                          supply=[9, 0, 0], demand=[0, 0, 4])
     >>> inst = assemble_instance(w)
@@ -110,8 +112,6 @@ def explain_node(
     site_name = str(site_codes[site]) if site >= 0 else NodeRole(int(inst.node_role[node])).name
     period_name = str(period_codes[period]) if period >= 0 else ""
     if not ranges.has_high[node]:
-        from planner.store import HIGH_REASON
-
         return Explanation(site_name, period_name, None, reason=HIGH_REASON)
 
     def name(s: int) -> str:
@@ -169,84 +169,3 @@ def stored_flow(inst: Instance, lane_flow: np.ndarray, site_spare: np.ndarray,
         flow[sel] = np.asarray(per_ref, dtype=np.int64)[ref[sel]]
     flow[kind == ArcKind.SPARE_TO_SHORT] = int(np.asarray(site_shortage).sum())
     return flow
-
-
-def explain_site(engine, site: str, period: str, run_id: int | None = None) -> Explanation:
-    """Explain a site's price in the latest optimal run of ``period`` (or run ``run_id``).
-
-    The flow is read back from the stored run, so the route shown is the one
-    of the plan that was stored.
-
-    Raises
-    ------
-    PlannerError
-        When there is no optimal run of the period or the site is not in it.
-    """
-    from sqlalchemy import text
-
-    from planner.duals import feasible_potential, price_ranges, residual_graph
-    from planner.errors import PlannerError
-    from planner.instance import assemble_instance
-    from planner.snapshot import Scaling, fetch_columns, read_snapshot
-
-    with engine.connect() as conn:
-        row = conn.execute(
-            text(
-                "SELECT r.id, r.batch_id, r.cost_decimals, r.quantity_decimals FROM solve_run r "
-                "JOIN period p ON p.id = r.period_id WHERE p.code = :period AND r.kind = 'week' "
-                "AND r.status = 'optimal' AND (CAST(:run AS bigint) IS NULL OR r.id = :run) "
-                "ORDER BY r.finished_at DESC, r.id DESC LIMIT 1"
-            ),
-            {"period": period, "run": run_id},
-        ).first()
-        if row is None:
-            raise PlannerError(
-                f"no optimal run of {period}" + (f" with id {run_id}" if run_id else "")
-                + f"; solve it first with `planner solve --period {period}`"
-            )
-        run, batch, cd, qd = (int(v) for v in row)
-        scaling = Scaling(cd, qd)
-        snap = read_snapshot(conn, period, scaling, batch_id=batch)
-        q = scaling.quantity_scale
-        flows = fetch_columns(
-            conn,
-            "SELECT lane_id, (flow * %(q)s)::bigint AS flow FROM run_flow WHERE run_id = %(r)s",
-            {"q": q, "r": run},
-            ints=["lane_id", "flow"],
-        )
-        sites = fetch_columns(
-            conn,
-            "SELECT site_id, (coalesce(spare, 0) * %(q)s)::bigint AS spare, "
-            "(coalesce(shortage, 0) * %(q)s)::bigint AS shortage, "
-            "(coalesce(throughput_flow, 0) * %(q)s)::bigint AS throughput "
-            "FROM run_site_price WHERE run_id = %(r)s",
-            {"q": q, "r": run},
-            ints=["site_id", "spare", "shortage", "throughput"],
-        )
-    matches = np.flatnonzero(snap.site_code == site)
-    if matches.shape[0] == 0:
-        raise PlannerError(f"site {site} is not in the snapshot of {period}; check the site code")
-    inst = assemble_instance(snap.week, cost_scale=scaling.cost_scale, quantity_scale=q)
-    lane_flow = np.zeros(snap.lane_id.shape[0], np.int64)
-    lane_flow[np.searchsorted(snap.lane_id, flows["lane_id"])] = flows["flow"]
-    per_site = np.searchsorted(snap.site_id, sites["site_id"])
-
-    def site_values(column: str) -> np.ndarray:
-        out = np.zeros(snap.site_id.shape[0], np.int64)
-        out[per_site] = sites[column]
-        return out
-
-    flow = stored_flow(inst, lane_flow, site_values("spare"), site_values("shortage"), site_values("throughput"))
-    res = residual_graph(inst, flow)
-    ranges = price_ranges(inst, res, feasible_potential(inst, res))
-    explanation = explain_node(
-        inst,
-        ranges,
-        res,
-        node_of(inst, int(matches[0])),
-        site_codes=snap.site_code,
-        lane_labels=snap.lane_labels(),
-        period_codes=[period],
-        site_kinds=snap.site_kind_name,
-    )
-    return explanation

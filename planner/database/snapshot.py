@@ -14,8 +14,8 @@ from dataclasses import dataclass
 import numpy as np
 from sqlalchemy import Connection, text
 
+from planner.core.week import INT64_MAX, NONE, SiteKind, WeekData
 from planner.errors import PlannerError
-from planner.instance import INT64_MAX, NONE, SiteKind, WeekData
 
 KIND_CODES = {"plant": SiteKind.PLANT, "warehouse": SiteKind.WAREHOUSE, "customer": SiteKind.CUSTOMER}
 
@@ -312,9 +312,44 @@ def read_snapshot(
     """
     period_id, batch_id, fingerprint = current_batch(conn, period, batch_id)
     _check_precision(conn, period_id, batch_id, scaling)
-    q, c = scaling.quantity_scale, scaling.unit_cost_scale
-    params = {"b": batch_id, "p": period_id, "q": q, "c": c}
-    sites = fetch_columns(
+    params = {"b": batch_id, "p": period_id, "q": scaling.quantity_scale, "c": scaling.unit_cost_scale}
+    sites = _read_sites(conn, params)
+    supply, demand, penalty = _read_needs(conn, params, sites["site_id"])
+    rates, registry, at = _read_rates(conn, params, lanes)
+    origin = np.searchsorted(sites["site_id"], registry["origin_id"][at])
+    destination = np.searchsorted(sites["site_id"], registry["destination_id"][at])
+    week = WeekData(
+        site_kind=np.array([KIND_CODES[k] for k in sites["kind"]], dtype=np.int8),
+        supply=supply,
+        demand=demand,
+        shortage_penalty=penalty,
+        throughput_capacity=sites["throughput"],
+        handling_cost=sites["handling"],
+        lane_origin=origin,
+        lane_destination=destination,
+        lane_cost=rates["cost"],
+        lane_capacity=rates["capacity"],
+        lane_min=rates["min"],
+        holding_cost=sites["holding"],
+        storage_capacity=sites["storage"],
+    )
+    return Snapshot(
+        period_id=period_id,
+        period=period,
+        batch_id=batch_id,
+        fingerprint=fingerprint,
+        site_id=sites["site_id"],
+        site_code=sites["code"],
+        site_kind_name=sites["kind"],
+        lane_id=rates["lane_id"],
+        lane_mode=registry["mode"][at],
+        week=week,
+    )
+
+
+def _read_sites(conn: Connection, params: dict) -> dict[str, np.ndarray]:
+    """The batch's sites, sorted by id, with their scaled warehouse figures."""
+    return fetch_columns(
         conn,
         "SELECT sv.site_id, s.code, sv.kind, "
         "coalesce((sv.throughput_capacity * %(q)s)::bigint, -1) AS throughput, "
@@ -330,13 +365,10 @@ def read_snapshot(
         texts=["code", "kind"],
         order_by="site_id",
     )
-    site_id = sites["site_id"]
-    n = site_id.shape[0]
-    kind = np.array([KIND_CODES[k] for k in sites["kind"]], dtype=np.int8)
 
-    def site_index(ids: np.ndarray) -> np.ndarray:
-        return np.searchsorted(site_id, ids)
 
+def _read_needs(conn: Connection, params: dict, site_id: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Supply, demand and shortage penalty per site (indexed like ``site_id``)."""
     supply_rows = fetch_columns(
         conn,
         "SELECT site_id, (quantity * %(q)s)::bigint AS quantity FROM supply "
@@ -352,9 +384,24 @@ def read_snapshot(
         params,
         ints=["site_id", "quantity", "penalty"],
     )
-    # The week's rates alone (an index range of lane_rate) and the lane
-    # registry beside them: cheaper than a join of the two. Sorting the
-    # arrays on the id in numpy spares PostgreSQL a sort.
+    n = site_id.shape[0]
+    supply = np.zeros(n, np.int64)
+    supply[np.searchsorted(site_id, supply_rows["site_id"])] = supply_rows["quantity"]
+    demand = np.zeros(n, np.int64)
+    penalty = np.full(n, NONE, np.int64)
+    d_idx = np.searchsorted(site_id, demand_rows["site_id"])
+    demand[d_idx] = demand_rows["quantity"]
+    penalty[d_idx] = demand_rows["penalty"]
+    return supply, demand, penalty
+
+
+def _read_rates(conn: Connection, params: dict, lanes: dict[str, np.ndarray] | None):
+    """The week's lane rates sorted by lane id, the lane registry, and each rate's position in it.
+
+    The week's rates alone (an index range of lane_rate) and the lane registry
+    beside them: cheaper than a join of the two. Sorting the arrays on the id
+    in numpy spares PostgreSQL a sort.
+    """
     rates = fetch_columns(
         conn,
         "SELECT lane_id, (unit_cost * %(c)s)::bigint AS cost, "
@@ -371,42 +418,7 @@ def read_snapshot(
         # A lane loaded after ``lanes`` was read: read the registry afresh.
         registry = read_lanes(conn)
         at = np.searchsorted(registry["id"], rates["lane_id"])
-
-    supply = np.zeros(n, np.int64)
-    supply[site_index(supply_rows["site_id"])] = supply_rows["quantity"]
-    demand = np.zeros(n, np.int64)
-    penalty = np.full(n, NONE, np.int64)
-    d_idx = site_index(demand_rows["site_id"])
-    demand[d_idx] = demand_rows["quantity"]
-    penalty[d_idx] = demand_rows["penalty"]
-
-    week = WeekData(
-        site_kind=kind,
-        supply=supply,
-        demand=demand,
-        shortage_penalty=penalty,
-        throughput_capacity=sites["throughput"],
-        handling_cost=sites["handling"],
-        lane_origin=site_index(registry["origin_id"][at]),
-        lane_destination=site_index(registry["destination_id"][at]),
-        lane_cost=rates["cost"],
-        lane_capacity=rates["capacity"],
-        lane_min=rates["min"],
-        holding_cost=sites["holding"],
-        storage_capacity=sites["storage"],
-    )
-    return Snapshot(
-        period_id=period_id,
-        period=period,
-        batch_id=batch_id,
-        fingerprint=fingerprint,
-        site_id=site_id,
-        site_code=sites["code"],
-        site_kind_name=sites["kind"],
-        lane_id=rates["lane_id"],
-        lane_mode=registry["mode"][at],
-        week=week,
-    )
+    return rates, registry, at
 
 
 def loaded_periods(conn: Connection) -> list[str]:

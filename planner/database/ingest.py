@@ -46,9 +46,19 @@ import pandas as pd
 import psycopg
 import sqlalchemy as sa
 
-from planner.db import ensure_schema, raw_copy_connection
+from planner.contract import (
+    DEMAND,
+    FILE_COLUMNS,
+    FILE_ORDER,
+    LANES,
+    REQUIRED_COLUMNS,
+    SITES,
+    SUPPLY,
+)
+from planner.database.connect import raw_copy_connection
+from planner.database.migrate import ensure_schema
+from planner.database.models import SITE_KINDS, LoadBatch
 from planner.errors import PlannerError, Problem, ValidationError
-from planner.models import SITE_KINDS, LoadBatch
 from planner.periods import parse_week
 
 __all__ = [
@@ -60,35 +70,6 @@ __all__ = [
     "load_folder",
     "validate_folder",
 ]
-
-SITES, SUPPLY, DEMAND, LANES = "sites.csv", "supply.csv", "demand.csv", "lanes.csv"
-_FILE_ORDER = (SITES, SUPPLY, DEMAND, LANES)
-
-#: Columns of each file, in the order of the contract and of the validated frames.
-FILE_COLUMNS: dict[str, tuple[str, ...]] = {
-    SITES: (
-        "site",
-        "kind",
-        "name",
-        "region",
-        "throughput_capacity",
-        "handling_cost",
-        "holding_cost",
-        "storage_capacity",
-        "x",
-        "y",
-    ),
-    SUPPLY: ("period", "site", "quantity"),
-    DEMAND: ("period", "site", "quantity", "shortage_penalty"),
-    LANES: ("period", "origin", "destination", "mode", "unit_cost", "capacity", "min_quantity"),
-}
-#: Columns that must be in the header; the others may be left out (all blank).
-REQUIRED_COLUMNS: dict[str, tuple[str, ...]] = {
-    SITES: ("site", "kind"),
-    SUPPLY: ("period", "site", "quantity"),
-    DEMAND: ("period", "site", "quantity"),
-    LANES: ("period", "origin", "destination", "unit_cost"),
-}
 
 # Plain decimal numbers only: no exponent, no thousands separator, no NaN or infinity,
 # so that the stored NUMERIC is exactly the text of the file.
@@ -198,7 +179,7 @@ def _read_sources(folder: str | Path) -> tuple[Path, dict[str, bytes | None]]:
     if not path.is_dir():
         raise PlannerError(f"load folder {path} does not exist or is not a folder")
     sources = {}
-    for name in _FILE_ORDER:
+    for name in FILE_ORDER:
         file = path / name
         sources[name] = file.read_bytes() if file.is_file() else None
     return path, sources
@@ -650,7 +631,7 @@ def _validate_sources(folder: Path, sources: dict[str, bytes | None]) -> Validat
         if frames[name] is not None
     }
     if problems:
-        order = {name: position for position, name in enumerate(_FILE_ORDER)}
+        order = {name: position for position, name in enumerate(FILE_ORDER)}
         problems.sort(key=lambda problem: (order[problem.file], problem.line or 0))
         raise ValidationError(problems)
 
@@ -670,10 +651,10 @@ def _validate_sources(folder: Path, sources: dict[str, bytes | None]) -> Validat
             "lanes": (canonical[LANES], ["origin", "destination", "mode"]),
         },
     )
-    clean = {name: frames[name].drop(columns=_LINE) for name in _FILE_ORDER}
+    clean = {name: frames[name].drop(columns=_LINE) for name in FILE_ORDER}
     return ValidatedFolder(
         folder=folder,
-        files={name: FileDigest(digests[name], len(clean[name])) for name in _FILE_ORDER},
+        files={name: FileDigest(digests[name], len(clean[name])) for name in FILE_ORDER},
         content_sha256=_content_sha256(digests),
         sites=clean[SITES],
         supply=clean[SUPPLY],
@@ -899,7 +880,7 @@ def _unchanged(connection: sa.Connection, folder: Path, latest: sa.Row) -> LoadR
         message=(
             f"{folder} is identical to batch {latest.id} (loaded {loaded_at}); nothing was loaded"
         ),
-        rows={name: latest.files[name]["rows"] for name in _FILE_ORDER},
+        rows={name: latest.files[name]["rows"] for name in FILE_ORDER},
         periods=list(periods),
     )
 
@@ -923,7 +904,7 @@ def load_folder(engine: sa.Engine, folder: str | Path) -> LoadResult:
     Parameters
     ----------
     engine : sqlalchemy.Engine
-        Target database (see :func:`planner.db.get_engine`).
+        Target database (see :func:`planner.database.connect.get_engine`).
     folder : str or pathlib.Path
         Folder holding sites.csv, supply.csv, demand.csv and lanes.csv.
 

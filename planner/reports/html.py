@@ -19,9 +19,15 @@ from pathlib import Path
 import pandas as pd
 from sqlalchemy import Engine
 
-from planner.charts import network_chart, price_chart
 from planner.errors import PlannerError
-from planner.report import WeekReport, format_number, network_of_week, site_prices, week_report
+from planner.reports.charts import network_chart, price_chart
+from planner.reports.queries import (
+    WeekReport,
+    format_number,
+    network_of_week,
+    site_prices,
+    week_report,
+)
 
 __all__ = ["render_week_report", "write_week_report"]
 
@@ -96,14 +102,14 @@ def _summary(report: WeekReport) -> str:
 
 
 def render_week_report(engine: Engine, report: WeekReport) -> str:
-    """The HTML page of a :class:`~planner.report.WeekReport`, charts included.
+    """The HTML page of a :class:`~planner.reports.queries.WeekReport`, charts included.
 
     Parameters
     ----------
     engine : sqlalchemy.Engine
         Where the charts' data (network, price histories) is read from.
     report : WeekReport
-        From :func:`planner.report.week_report`; must not be empty.
+        From :func:`planner.reports.queries.week_report`; must not be empty.
 
     Returns
     -------
@@ -117,8 +123,7 @@ def render_week_report(engine: Engine, report: WeekReport) -> str:
     """
     if report.empty:
         raise PlannerError(report.message)
-    period, previous = report.period, report.previous_period
-    run_id = None if report.run is None else int(report.run["run_id"])
+    period = report.period
     parts = [
         f'<h1 style="font-size: 24px; margin: 0 0 4px 0;">Weekly network plan: {escape(period)}</h1>',
         f'<p style="{_NOTE}">Generated {datetime.datetime.now(datetime.timezone.utc):%Y-%m-%d %H:%M} UTC. '
@@ -127,27 +132,48 @@ def render_week_report(engine: Engine, report: WeekReport) -> str:
     ]
     parts += [f'<p style="{_NOTE}">Note: {escape(note)}</p>' for note in report.notes]
     parts.append(_section("Run and certificate", _summary(report)))
+    parts.append(_cost_section(report))
+    parts.append(_network_section(engine, report))
+    parts.append(_moves_section(engine, report))
+    parts.append(_binding_section(report))
+    parts.append(_shortages_section(report))
+    body = "\n".join(parts)
+    return (
+        "<!DOCTYPE html>\n"
+        '<html lang="en"><head><meta charset="utf-8">'
+        '<meta name="viewport" content="width=device-width, initial-scale=1">'
+        f"<title>Weekly network plan {escape(period)}</title></head>"
+        f'<body style="{_FONT} margin: 24px; max-width: 960px;">\n{body}\n</body></html>\n'
+    )
 
+
+def _run_id(report: WeekReport) -> int | None:
+    return None if report.run is None else int(report.run["run_id"])
+
+
+def _cost_section(report: WeekReport) -> str:
     total = pd.DataFrame([{"echelon": "total", "mode": "", "units": None, "cost": report.cost_total}], dtype=object)
     cost = pd.concat([report.cost, total], ignore_index=True)
-    parts.append(
-        _section(
-            "Cost by echelon and mode",
-            _table(cost, {"echelon": "echelon", "mode": "mode", "units": "units", "cost": "cost"}, {"units": 0, "cost": 2}),
-        )
+    return _section(
+        "Cost by echelon and mode",
+        _table(cost, {"echelon": "echelon", "mode": "mode", "units": "units", "cost": "cost"}, {"units": 0, "cost": 2}),
     )
 
-    sites, lanes, in_use = network_of_week(engine, period, run_id=run_id)
-    parts.append(
-        _section(
-            "Network",
-            _image(
-                network_chart(sites, lanes, title=f"Network of {period}", lanes_in_use=in_use),
-                f"network of {period}: lanes by flow, lanes at capacity dashed red",
-            ),
-        )
+
+def _network_section(engine: Engine, report: WeekReport) -> str:
+    period = report.period
+    sites, lanes, in_use = network_of_week(engine, period, run_id=_run_id(report))
+    return _section(
+        "Network",
+        _image(
+            network_chart(sites, lanes, title=f"Network of {period}", lanes_in_use=in_use),
+            f"network of {period}: lanes by flow, lanes at capacity dashed red",
+        ),
     )
 
+
+def _moves_section(engine: Engine, report: WeekReport) -> str:
+    period, previous = report.period, report.previous_period
     if report.moves.empty:
         moves = f'<p style="{_NOTE}">No price moved versus {escape(previous)}.</p>'
     else:
@@ -163,41 +189,38 @@ def render_week_report(engine: Engine, report: WeekReport) -> str:
         for site in report.moves["site"].head(PRICE_CHARTS):
             history = site_prices(engine, site, last=period)
             moves += _image(price_chart(history), f"price of {site} per week with its range")
-    parts.append(_section(f"Biggest price moves versus {previous}", moves))
+    return _section(f"Biggest price moves versus {previous}", moves)
 
+
+def _binding_section(report: WeekReport) -> str:
     if report.binding.empty:
-        binding = f'<p style="{_NOTE}">No lane or warehouse is at capacity.</p>'
-    else:
-        binding = _table(
+        return _section("Top binding capacities", f'<p style="{_NOTE}">No lane or warehouse is at capacity.</p>')
+    return _section(
+        "Top binding capacities",
+        _table(
             report.binding,
             {
                 "rank": "rank", "kind": "kind", "label": "capacity of",
                 "capacity_value": "value of one more unit", "capacity": "capacity", "flow": "flow",
             },
             {"rank": 0, "capacity_value": 2, "capacity": 0, "flow": 0},
-        )
-    parts.append(_section("Top binding capacities", binding))
+        ),
+    )
 
+
+def _shortages_section(report: WeekReport) -> str:
     if report.shortages.empty:
-        shortages = f'<p style="{_NOTE}">No shortage: every customer\'s demand is met.</p>'
-    else:
-        shortages = _table(
+        return _section("Shortages", f'<p style="{_NOTE}">No shortage: every customer\'s demand is met.</p>')
+    return _section(
+        "Shortages",
+        _table(
             report.shortages,
             {
                 "customer": "customer", "name": "name", "region": "region", "demand": "demand",
                 "units_short": "units short", "penalty": "penalty per unit", "penalty_cost": "penalty cost",
             },
             {"demand": 0, "units_short": 0, "penalty": 2, "penalty_cost": 2},
-        )
-    parts.append(_section("Shortages", shortages))
-
-    body = "\n".join(parts)
-    return (
-        "<!DOCTYPE html>\n"
-        '<html lang="en"><head><meta charset="utf-8">'
-        '<meta name="viewport" content="width=device-width, initial-scale=1">'
-        f"<title>Weekly network plan {escape(period)}</title></head>"
-        f'<body style="{_FONT} margin: 24px; max-width: 960px;">\n{body}\n</body></html>\n'
+        ),
     )
 
 

@@ -4,7 +4,7 @@ Two things stop a min-cost flow from having an optimal plan, and both deserve a
 message a planner can act on rather than a solver status:
 
 * **Infeasible**: not every unit can be moved as required. After removing the
-  lower bounds (``x = l + x'``, as :func:`planner.solve.shifted_supply` does),
+  lower bounds (``x = l + x'``, as :func:`planner.core.solve.shifted_supply` does),
   a super source feeds every node with surplus and a super sink drains every
   node with a need. The week is feasible exactly when a maximum flow
   saturates every source arc (Gale's and Hoffman's feasibility theorem); the
@@ -51,8 +51,9 @@ import scipy.sparse as sp
 from ortools.graph.python import max_flow
 from scipy.sparse.csgraph import breadth_first_order
 
-from planner.instance import ArcKind, Instance, NodeRole
-from planner.solve import shifted_supply
+from planner.core.network import ArcKind, Instance, NodeRole
+from planner.core.residual import label_correcting
+from planner.core.solve import shifted_supply
 
 __all__ = ["Infeasibility", "diagnose_infeasible", "find_unbounded_cycle", "describe_cycle"]
 
@@ -203,7 +204,8 @@ def diagnose_infeasible(
     --------
     A customer needing 80 units behind a lane that carries 50:
 
-    >>> from planner.instance import WeekData, assemble_instance
+    >>> from planner.core.week import WeekData
+    >>> from planner.core.network import assemble_instance
     >>> week = WeekData.from_arrays([0, 2], [0], [1], [10], supply=[100, 0],
     ...                             demand=[0, 80], lane_capacity=[50])
     >>> d = diagnose_infeasible(assemble_instance(week), site_codes=["P1", "C017"],
@@ -217,12 +219,60 @@ def diagnose_infeasible(
     a shortage_penalty.
     """
     names = _Names(inst, site_codes, lane_labels, period_codes)
+    gaps = _feasibility_flow(inst)
+    if gaps.shortfall == 0 and gaps.over_committed.shape[0] == 0:
+        raise ValueError("the instance is feasible: every unit can be moved as required")
+    near_need = _can_reach(
+        inst, gaps.room, gaps.flow, np.flatnonzero(gaps.deficit > 0), exclude=inst.spare
+    )
+    capacity_kinds = np.isin(inst.arc_kind, [ArcKind.LANE, ArcKind.THROUGHPUT, ArcKind.STOCK])
+    limiting = np.flatnonzero(
+        capacity_kinds & ~inst.unlimited & ~near_need[inst.tail] & near_need[inst.head]
+    )
+    short_customers = _short_customers(inst, gaps.deficit)
+    exhausted = np.flatnonzero(near_need & (gaps.b > 0) & (inst.node_role == NodeRole.SITE))
+    exhausted_supply = [
+        (int(inst.node_site[v]), int(inst.node_period[v]), int(gaps.b[v])) for v in exhausted
+    ]
+    committed = (inst.arc_kind == ArcKind.LANE) & (inst.lower > 0)
+    unmet = committed & ((gaps.deficit[inst.tail] > 0) | (gaps.excess[inst.head] > 0))
+    unmet[gaps.over_committed] = True
+    unmet_minimums = np.flatnonzero(unmet)
+    unreached = _unreached(inst, names, short_customers)
+    findings = _Findings(short_customers, limiting, unmet_minimums, exhausted_supply, unreached)
+    return Infeasibility(
+        shortfall=gaps.shortfall,
+        short_customers=short_customers,
+        limiting_arcs=[int(a) for a in limiting],
+        unmet_minimums=[int(a) for a in unmet_minimums],
+        message=_infeasible_message(inst, names, gaps, findings),
+        exhausted_supply=exhausted_supply,
+    )
+
+
+@dataclass(frozen=True)
+class _Gaps:
+    """A maximum flow from the surplus nodes to the needy ones, and what it leaves over."""
+
+    b: np.ndarray  #: net supply after removing the lower bounds
+    room: np.ndarray  #: capacity above the lower bound, 0 where the minimum exceeds it
+    over_committed: np.ndarray  #: arcs whose minimum exceeds their capacity
+    flow: np.ndarray  #: maximum flow on each arc
+    excess: np.ndarray  #: surplus per node the flow could not place
+    deficit: np.ndarray  #: need per node the flow could not meet
+
+    @property
+    def shortfall(self) -> int:
+        return int(self.excess.sum())
+
+
+def _feasibility_flow(inst: Instance) -> _Gaps:
+    """Maximum flow from a super source (feeding every surplus) to a super sink (draining every need)."""
     n = inst.n_nodes
     b = shifted_supply(inst)
     room = inst.upper - inst.lower
     over_committed = np.flatnonzero(room < 0)
     room = np.maximum(room, 0)
-
     source, sink = n, n + 1
     sources = np.flatnonzero(b > 0)
     sinks = np.flatnonzero(b < 0)
@@ -241,63 +291,25 @@ def diagnose_infeasible(
     excess[sources] = b[sources] - flows[m : m + sources.shape[0]]
     deficit = np.zeros(n, dtype=np.int64)
     deficit[sinks] = -b[sinks] - flows[m + sources.shape[0] :]
-    shortfall = int(excess.sum())
-    if shortfall == 0 and over_committed.shape[0] == 0:
-        raise ValueError("the instance is feasible: every unit can be moved as required")
+    return _Gaps(b, room, over_committed, flows[:m], excess, deficit)
 
-    near_need = _can_reach(inst, room, flows[:m], np.flatnonzero(deficit > 0), exclude=inst.spare)
 
-    capacity_kinds = np.isin(inst.arc_kind, [ArcKind.LANE, ArcKind.THROUGHPUT, ArcKind.STOCK])
-    limiting = np.flatnonzero(
-        capacity_kinds & ~inst.unlimited & ~near_need[inst.tail] & near_need[inst.head]
-    )
-
+def _short_customers(inst: Instance, deficit: np.ndarray) -> list[tuple[int, int, int]]:
+    """``(site, period, units)`` of the sites whose demand the maximum flow leaves unmet, largest first."""
     short_nodes = np.flatnonzero((deficit > 0) & (inst.supply < 0) & (inst.node_role == NodeRole.SITE))
     short_units = np.minimum(deficit[short_nodes], -inst.supply[short_nodes])
     order = np.lexsort((short_nodes, -short_units))
-    short_customers = [
+    return [
         (int(inst.node_site[v]), int(inst.node_period[v]), int(u))
         for v, u in zip(short_nodes[order], short_units[order])
     ]
 
-    exhausted = np.flatnonzero(near_need & (b > 0) & (inst.node_role == NodeRole.SITE))
-    exhausted_supply = [
-        (int(inst.node_site[v]), int(inst.node_period[v]), int(b[v])) for v in exhausted
-    ]
 
-    committed = (inst.arc_kind == ArcKind.LANE) & (inst.lower > 0)
-    unmet = committed & ((deficit[inst.tail] > 0) | (excess[inst.head] > 0))
-    unmet[over_committed] = True
-    unmet_minimums = np.flatnonzero(unmet)
-
-    # Short customers that no arc enters at all (no lane this period).
-    entered = np.zeros(n, dtype=bool)
+def _unreached(inst: Instance, names: _Names, short_customers) -> list[str]:
+    """Short customers that no arc enters at all (no lane this period)."""
+    entered = np.zeros(inst.n_nodes, dtype=bool)
     entered[inst.head[inst.arc_kind != ArcKind.SHORTAGE]] = True
-    unreached = [
-        names.site_in_period(s, t) for s, t, _ in short_customers if not entered[inst.site_node[t, s]]
-    ]
-
-    message = _infeasible_message(
-        inst,
-        names,
-        shortfall,
-        short_customers,
-        limiting,
-        unmet_minimums,
-        over_committed,
-        exhausted_supply,
-        unreached,
-        deficit,
-        excess,
-    )
-    return Infeasibility(
-        shortfall=shortfall,
-        short_customers=short_customers,
-        limiting_arcs=[int(a) for a in limiting],
-        unmet_minimums=[int(a) for a in unmet_minimums],
-        message=message,
-        exhausted_supply=exhausted_supply,
-    )
+    return [names.site_in_period(s, t) for s, t, _ in short_customers if not entered[inst.site_node[t, s]]]
 
 
 def _can_reach(inst: Instance, room, flow, targets, exclude: int) -> np.ndarray:
@@ -324,92 +336,121 @@ def _can_reach(inst: Instance, room, flow, targets, exclude: int) -> np.ndarray:
     return reach
 
 
-def _infeasible_message(
-    inst, names, shortfall, short_customers, limiting, unmet_minimums, over_committed,
-    exhausted_supply, unreached, deficit, excess,
-) -> str:
-    qs = inst.quantity_scale
-    n_periods = inst.site_node.shape[0]
-    if n_periods == 1:
-        where = names.bucket(0)
-    elif names.period_codes is None:
-        where = f"the horizon of periods 0 to {n_periods - 1}"
-    else:
-        where = f"the horizon {names.period(0)} to {names.period(n_periods - 1)}"
-    short_total = sum(u for _, _, u in short_customers)
-    if shortfall == 0:
-        what = "a lane minimum exceeds the lane's capacity"
-    elif short_total == shortfall:
-        what = f"{_count(shortfall, qs)} of demand cannot be served"
-    elif short_total > 0:
-        what = (
-            f"{_count(shortfall, qs)} cannot be moved as required, "
-            f"{_units(short_total, qs)} of them demand that cannot be served"
-        )
-    else:
-        what = f"{_count(shortfall, qs)} cannot be moved as required"
-    parts = [f"{where} is infeasible: {what}."]
+@dataclass(frozen=True)
+class _Findings:
+    """What the cut names, for the message."""
 
+    short_customers: list[tuple[int, int, int]]
+    limiting: np.ndarray
+    unmet_minimums: np.ndarray
+    exhausted_supply: list[tuple[int, int, int]]
+    unreached: list[str]
+
+
+def _infeasible_message(inst: Instance, names: _Names, gaps: _Gaps, found: _Findings) -> str:
+    qs = inst.quantity_scale
+    parts = [f"{_where(inst, names)} is infeasible: {_what(gaps.shortfall, found.short_customers, qs)}."]
     # SPARE is a source when demand exceeds supply; it says so only when the
     # shortage penalties cannot absorb the difference.
     spare_need = int(inst.supply[inst.spare])
-    if excess[inst.spare] > 0:
-        covered = spare_need - int(excess[inst.spare])
+    if gaps.excess[inst.spare] > 0:
+        covered = spare_need - int(gaps.excess[inst.spare])
         sentence = f"Total demand exceeds total supply by {_count(spare_need, qs)}"
         if covered > 0:
             sentence += f"; shortage penalties can cover only {_units(covered, qs)} of them"
         parts.append(sentence + ".")
-    if short_customers:
+    if found.short_customers:
+        parts.append("Customers short: " + _site_units(names, found.short_customers, qs) + ".")
+    if found.unreached:
+        parts.append(f"No lane reaches: {_listing(found.unreached)}.")
+    parts += _limiting_sentences(inst, names, found.limiting)
+    if found.exhausted_supply:
         parts.append(
-            "Customers short: "
-            + _listing([f"{names.site_in_period(s, t)} ({_units(u, qs)})" for s, t, u in short_customers])
-            + "."
+            "All supply that could close the gap is used: "
+            + _site_units(names, found.exhausted_supply, qs) + "."
         )
-    if unreached:
-        parts.append(f"No lane reaches: {_listing(unreached)}.")
+    if found.short_customers:
+        parts.append(_advice(found))
+    if found.unmet_minimums.shape[0]:
+        parts += _minimum_sentences(inst, names, gaps, found.unmet_minimums)
+    return " ".join(parts)
+
+
+def _where(inst: Instance, names: _Names) -> str:
+    n_periods = inst.site_node.shape[0]
+    if n_periods == 1:
+        return names.bucket(0)
+    if names.period_codes is None:
+        return f"the horizon of periods 0 to {n_periods - 1}"
+    return f"the horizon {names.period(0)} to {names.period(n_periods - 1)}"
+
+
+def _what(shortfall: int, short_customers, qs: int) -> str:
+    short_total = sum(u for _, _, u in short_customers)
+    if shortfall == 0:
+        return "a lane minimum exceeds the lane's capacity"
+    if short_total == shortfall:
+        return f"{_count(shortfall, qs)} of demand cannot be served"
+    if short_total > 0:
+        return (
+            f"{_count(shortfall, qs)} cannot be moved as required, "
+            f"{_units(short_total, qs)} of them demand that cannot be served"
+        )
+    return f"{_count(shortfall, qs)} cannot be moved as required"
+
+
+def _site_units(names: _Names, rows, qs: int) -> str:
+    return _listing([f"{names.site_in_period(s, t)} ({_units(u, qs)})" for s, t, u in rows])
+
+
+def _limiting_sentences(inst: Instance, names: _Names, limiting: np.ndarray) -> list[str]:
     groups = {
         ArcKind.LANE: "Limiting lanes (at capacity)",
         ArcKind.THROUGHPUT: "Limiting warehouse throughput",
         ArcKind.STOCK: "Limiting storage",
     }
+    out = []
     for kind, title in groups.items():
         arcs = [int(a) for a in limiting if int(inst.arc_kind[a]) == kind]
         if arcs:
-            labels = [f"{names.arc(a, grouped=True)} (cap {_units(inst.upper[a], qs)})" for a in arcs]
-            parts.append(f"{title}: {_listing(labels)}.")
-    if exhausted_supply:
-        parts.append(
-            "All supply that could close the gap is used: "
-            + _listing([f"{names.site_in_period(s, t)} ({_units(u, qs)})" for s, t, u in exhausted_supply])
-            + "."
-        )
-    if short_customers:
-        actions = []
-        if limiting.shape[0]:
-            actions += ["raise these capacities", "add supply reachable from them"]
+            labels = [
+                f"{names.arc(a, grouped=True)} (cap {_units(inst.upper[a], inst.quantity_scale)})" for a in arcs
+            ]
+            out.append(f"{title}: {_listing(labels)}.")
+    return out
+
+
+def _advice(found: _Findings) -> str:
+    actions = []
+    if found.limiting.shape[0]:
+        actions += ["raise these capacities", "add supply reachable from them"]
+    else:
+        actions.append("add supply that can reach these customers")
+    if found.unreached:
+        actions.append("open lanes to the customers no lane reaches")
+    actions.append("give these customers a shortage_penalty")
+    advice = " or ".join(actions) if len(actions) == 2 else ", ".join(actions[:-1]) + ", or " + actions[-1]
+    return advice[0].upper() + advice[1:] + "."
+
+
+def _minimum_sentences(inst: Instance, names: _Names, gaps: _Gaps, unmet: np.ndarray) -> list[str]:
+    qs = inst.quantity_scale
+    above = set(int(a) for a in gaps.over_committed)
+    labels = []
+    for a in unmet:
+        a = int(a)
+        label = f"{names.arc(a)} (min {_units(inst.lower[a], qs)})"
+        if a in above:
+            label += f" above its capacity {_units(inst.upper[a], qs)}"
+        elif gaps.deficit[inst.tail[a]] > 0:
+            label += f": {names.site_in_period(*_site_period(inst, inst.tail[a]))} cannot receive it"
         else:
-            actions.append("add supply that can reach these customers")
-        if unreached:
-            actions.append("open lanes to the customers no lane reaches")
-        actions.append("give these customers a shortage_penalty")
-        advice = " or ".join(actions) if len(actions) == 2 else ", ".join(actions[:-1]) + ", or " + actions[-1]
-        parts.append(advice[0].upper() + advice[1:] + ".")
-    if unmet_minimums.shape[0]:
-        above = set(int(a) for a in over_committed)
-        labels = []
-        for a in unmet_minimums:
-            a = int(a)
-            label = f"{names.arc(a)} (min {_units(inst.lower[a], qs)})"
-            if a in above:
-                label += f" above its capacity {_units(inst.upper[a], qs)}"
-            elif deficit[inst.tail[a]] > 0:
-                label += f": {names.site_in_period(*_site_period(inst, inst.tail[a]))} cannot receive it"
-            else:
-                label += f": {names.site_in_period(*_site_period(inst, inst.head[a]))} cannot pass it on"
-            labels.append(label)
-        parts.append(f"Lane minimums that cannot be met: {_listing(labels)}.")
-        parts.append("Lower these minimums or route supply to the sites that must ship them.")
-    return " ".join(parts)
+            label += f": {names.site_in_period(*_site_period(inst, inst.head[a]))} cannot pass it on"
+        labels.append(label)
+    return [
+        f"Lane minimums that cannot be met: {_listing(labels)}.",
+        "Lower these minimums or route supply to the sites that must ship them.",
+    ]
 
 
 def _site_period(inst: Instance, node) -> tuple[int, int]:
@@ -424,12 +465,9 @@ def find_unbounded_cycle(inst: Instance) -> list[int] | None:
     True are searched, so a negative cycle that has a capacity somewhere is
     bounded and not reported.
 
-    A vectorised Bellman-Ford pass from a virtual source joined to every node
-    at cost 0 keeps, for each node, the arc that last lowered its label. When
-    labels still fall in round ``n`` (the number of nodes), walking ``n``
-    predecessor steps back from a node that fell lands on a cycle of the
-    predecessor graph, and every such cycle has negative cost [1]_. The walk
-    is also tried at rounds 2, 4, 8, ..., so a short cycle is found early.
+    The label-correcting pass of :func:`planner.core.residual.label_correcting`
+    runs on those arcs alone; a cycle of its predecessor graph has negative
+    cost [1]_.
 
     Parameters
     ----------
@@ -446,7 +484,8 @@ def find_unbounded_cycle(inst: Instance) -> list[int] | None:
     --------
     Two warehouses with lanes both ways, one of them paid to take units back:
 
-    >>> from planner.instance import WeekData, assemble_instance
+    >>> from planner.core.week import WeekData
+    >>> from planner.core.network import assemble_instance
     >>> week = WeekData.from_arrays([0, 1, 1, 2], [0, 1, 2, 1], [1, 2, 1, 3],
     ...                             [10, -50000, 15000, 5],
     ...                             supply=[5, 0, 0, 0], demand=[0, 0, 0, 5])
@@ -465,82 +504,17 @@ def find_unbounded_cycle(inst: Instance) -> list[int] | None:
        and the proof of lemma 24.16 (a cycle of the predecessor graph has
        negative weight).
     """
-    n = inst.n_nodes
     arcs = np.flatnonzero(inst.unlimited)
-    if n == 0 or not np.any(inst.cost[arcs] < 0):
+    if inst.n_nodes == 0 or not np.any(inst.cost[arcs] < 0):
         return None
-    arcs = arcs[np.argsort(inst.tail[arcs], kind="stable")]
-    tail = inst.tail[arcs]
-    head = inst.head[arcs]
-    cost = inst.cost[arcs]
-    first_out = np.searchsorted(tail, np.arange(n + 1))
-    label = np.zeros(n, dtype=np.int64)
-    pred = np.full(n, -1, dtype=np.int64)  # position in ``arcs`` that last lowered the label
-    active = np.unique(tail[cost < 0])  # from labels all 0, only negative arcs lower one
-    for round_ in range(1, n + 1):
-        pos = _arcs_leaving(first_out, active)
-        cand = label[tail[pos]] + cost[pos]
-        better = cand < label[head[pos]]
-        if not better.any():
-            return None
-        pos, cand = pos[better], cand[better]
-        new_label = label.copy()
-        np.minimum.at(new_label, head[pos], cand)
-        best = cand == new_label[head[pos]]
-        pred[head[pos[best]]] = pos[best]
-        active = np.unique(head[pos])
-        label = new_label
-        # A cycle of the predecessor graph is negative and can form long before
-        # round n; look for one at rounds 2, 4, 8, ... (each look is n log n).
-        if round_ == n or (round_ >= 2 and round_ & (round_ - 1) == 0):
-            cycle = _predecessor_cycle(pred, tail, n, active)
-            if cycle is not None:
-                found = [int(arcs[p]) for p in cycle]
-                if _scaled_cost(inst, found) >= 0:
-                    raise RuntimeError("negative-cycle search found a cycle that is not negative")
-                start = found.index(min(found))
-                return found[start:] + found[:start]
-    # Labels still fell in round n, so walking n steps back from a node that
-    # fell must have landed on a cycle.
-    raise RuntimeError("negative-cycle search lost its predecessor chain")
-
-
-def _arcs_leaving(first_out: np.ndarray, nodes: np.ndarray) -> np.ndarray:
-    """Positions of the arcs leaving ``nodes`` in arcs sorted by tail (CSR offsets)."""
-    starts = first_out[nodes]
-    counts = first_out[nodes + 1] - starts
-    total = int(counts.sum())
-    # One arange per node without a Python loop: offsets restart at each node.
-    return np.arange(total, dtype=np.int64) + np.repeat(starts - np.cumsum(counts) + counts, counts)
-
-
-def _predecessor_cycle(pred: np.ndarray, tail: np.ndarray, n: int, starts: np.ndarray) -> list[int] | None:
-    """A cycle of the predecessor graph met walking ``n`` steps back from ``starts``.
-
-    Returns the positions (into the searched arcs) of the cycle's arcs in
-    flow order, or None when every walk ends at a node without predecessor.
-    """
-    parent = np.where(pred >= 0, tail[np.maximum(pred, 0)], np.arange(n))
-    node, jump, steps = starts, parent, n
-    while steps:  # n steps by doubling
-        if steps & 1:
-            node = jump[node]
-        jump = jump[jump]
-        steps >>= 1
-    on_cycle = node[pred[node] >= 0]
-    if on_cycle.shape[0] == 0:
+    found = label_correcting(inst.n_nodes, inst.tail[arcs], inst.head[arcs], inst.cost[arcs])
+    if found.cycle is None:
         return None
-    first = int(on_cycle[0])
-    cycle: list[int] = []
-    v = first
-    while True:
-        p = int(pred[v])
-        cycle.append(p)
-        v = int(tail[p])
-        if v == first:
-            break
-    cycle.reverse()
-    return cycle
+    cycle = [int(arcs[p]) for p in found.cycle]
+    if _scaled_cost(inst, cycle) >= 0:
+        raise RuntimeError("negative-cycle search found a cycle that is not negative")
+    start = cycle.index(min(cycle))
+    return cycle[start:] + cycle[:start]
 
 
 def _scaled_cost(inst: Instance, arcs: Sequence[int]) -> int:
@@ -576,7 +550,8 @@ def describe_cycle(
 
     Examples
     --------
-    >>> from planner.instance import WeekData, assemble_instance
+    >>> from planner.core.week import WeekData
+    >>> from planner.core.network import assemble_instance
     >>> inst = assemble_instance(WeekData.from_arrays([1, 1], [0, 1], [1, 0], [-20000, 5000]))
     >>> print(describe_cycle(inst, [0, 1]))  # doctest: +NORMALIZE_WHITESPACE
     unbounded: the lanes lane 0, lane 1 form a cycle of cost -1.50 per unit

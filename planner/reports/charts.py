@@ -4,9 +4,9 @@ Charts are drawn with matplotlib's Agg renderer on a :class:`~matplotlib.figure.
 of their own (no pyplot, no display, no global state), and returned as PNG bytes,
 ready to write to a file or to inline in an HTML page.
 
-The inputs are the DataFrames of :mod:`planner.report`: :func:`price_chart` takes the
-rows of one site from :func:`planner.report.site_prices`, :func:`network_chart` the
-sites and lanes from :func:`planner.report.network_of_week`.
+The inputs are the DataFrames of :mod:`planner.reports.queries`: :func:`price_chart` takes the
+rows of one site from :func:`planner.reports.queries.site_prices`, :func:`network_chart` the
+sites and lanes from :func:`planner.reports.queries.network_of_week`.
 """
 
 from __future__ import annotations
@@ -57,7 +57,7 @@ def price_chart(history: pd.DataFrame, *, title: str | None = None) -> bytes:
     ----------
     history : pandas.DataFrame
         Rows of one site with ``period``, ``price``, ``price_low``, ``price_high`` and
-        ``degenerate`` (as returned by :func:`planner.report.site_prices`).
+        ``degenerate`` (as returned by :func:`planner.reports.queries.site_prices`).
     title : str, optional
         Default: ``"<site>: price per unit"``.
 
@@ -97,16 +97,7 @@ def price_chart(history: pd.DataFrame, *, title: str | None = None) -> bytes:
     figure = Figure(figsize=(8, 4))
     axes = figure.add_subplot()
     x = np.arange(len(periods))
-    band_low = np.where(np.isfinite(low), low, bottom)
-    band_high = np.where(np.isfinite(high), high, top)
-    open_ended = ~(np.isfinite(low) & np.isfinite(high))
-    # One bar per period from low to high: weeks are discrete, so no interpolation.
-    axes.bar(x, band_high - band_low, bottom=band_low, width=0.6, color="#9ecae1", alpha=0.6, linewidth=0)
-    if open_ended.any():
-        axes.bar(
-            x[open_ended], (band_high - band_low)[open_ended], bottom=band_low[open_ended], width=0.6,
-            color="none", hatch="//", edgecolor="#6baed6", linewidth=0,
-        )
+    open_ended = _draw_ranges(axes, x, low, high, bottom, top)
     axes.plot(x, price, color="#08519c", marker="o", markersize=4, linewidth=1.5)
     axes.scatter(
         x[degenerate], price[degenerate], marker="D", s=70, facecolors="none",
@@ -120,17 +111,38 @@ def price_chart(history: pd.DataFrame, *, title: str | None = None) -> bytes:
     axes.grid(axis="y", alpha=0.3)
     site = str(sites[0]) if len(sites) else ""
     axes.set_title(title or f"{site}: price per unit")
+    axes.legend(handles=_price_legend(open_ended.any()), loc="best", fontsize=8, framealpha=0.9)
+    figure.tight_layout()
+    return _png(figure)
+
+
+def _draw_ranges(axes, x, low, high, bottom: float, top: float) -> np.ndarray:
+    """One bar per period from low to high (weeks are discrete: no interpolation); open bounds hatched.
+
+    Returns which periods have an open bound.
+    """
+    band_low = np.where(np.isfinite(low), low, bottom)
+    band_high = np.where(np.isfinite(high), high, top)
+    open_ended = ~(np.isfinite(low) & np.isfinite(high))
+    axes.bar(x, band_high - band_low, bottom=band_low, width=0.6, color="#9ecae1", alpha=0.6, linewidth=0)
+    if open_ended.any():
+        axes.bar(
+            x[open_ended], (band_high - band_low)[open_ended], bottom=band_low[open_ended], width=0.6,
+            color="none", hatch="//", edgecolor="#6baed6", linewidth=0,
+        )
+    return open_ended
+
+
+def _price_legend(any_open: bool) -> list:
     handles = [
         Line2D([], [], color="#08519c", marker="o", markersize=4, label="price"),
         Patch(facecolor="#9ecae1", alpha=0.6, label="[low, high] range"),
         Line2D([], [], color="none", marker="D", markerfacecolor="none", markeredgecolor="#e6550d",
                markersize=8, label="degenerate: price not unique"),
     ]
-    if open_ended.any():
+    if any_open:
         handles.append(Patch(facecolor="white", edgecolor="#6baed6", hatch="//", label="bound open (no further unit)"))
-    axes.legend(handles=handles, loc="best", fontsize=8, framealpha=0.9)
-    figure.tight_layout()
-    return _png(figure)
+    return handles
 
 
 def _has_coordinates(sites: pd.DataFrame) -> np.ndarray:
@@ -234,33 +246,8 @@ def network_chart(
     axes = figure.add_subplot()
     drawn = lanes[lanes["origin"].astype(str).isin(index) & lanes["destination"].astype(str).isin(index)]
     if not drawn.empty:
-        start = xy[drawn["origin"].astype(str).map(index).to_numpy(dtype=int)]
-        end = xy[drawn["destination"].astype(str).map(index).to_numpy(dtype=int)]
-        flow = _floats(drawn["flow"])
-        # Thinner lines when there are many, so that the busiest still stand out.
-        widest = 4.0 if len(drawn) <= 200 else 1.5
-        widths = 0.3 + widest * flow / (flow.max() or 1.0)
-        binding = drawn["at_capacity"].astype(bool).to_numpy()
-        segments = np.stack([start, end], axis=1)
-        for selected, colour, style, z in ((~binding, _FLOW_COLOUR, "solid", 1), (binding, _BINDING_COLOUR, "dashed", 2)):
-            if selected.any():
-                axes.add_collection(
-                    LineCollection(
-                        segments[selected], linewidths=widths[selected], colors=colour,
-                        linestyles=style, alpha=0.75, zorder=z,
-                    )
-                )
-    kinds = sites["kind"].fillna("").astype(str).to_numpy()
-    for kind, style in KIND_STYLE.items():
-        chosen = kinds == kind
-        if chosen.any():
-            axes.scatter(
-                xy[chosen, 0], xy[chosen, 1], marker=style["marker"], color=style["color"],
-                s=60 if len(sites) <= 200 else 12, zorder=3, edgecolors="white", linewidths=0.6,
-            )
-    if len(sites) <= 80:
-        for code, (x, y) in zip(sites["site"].astype(str), xy):
-            axes.annotate(code, (x, y), textcoords="offset points", xytext=(5, 5), fontsize=8, zorder=4)
+        _draw_lanes(axes, xy, index, drawn)
+    _draw_sites(axes, xy, sites)
     if _has_coordinates(sites).any():
         axes.set_aspect("equal", adjustable="datalim")
     else:
@@ -282,3 +269,38 @@ def network_chart(
     axes.legend(handles=handles, loc="upper center", bbox_to_anchor=(0.5, -0.06), ncol=5, fontsize=8, frameon=False)
     figure.tight_layout()
     return _png(figure)
+
+
+def _draw_lanes(axes, xy: np.ndarray, index: dict, drawn: pd.DataFrame) -> None:
+    """Lanes as segments, width by flow; lanes at capacity red and dashed."""
+    start = xy[drawn["origin"].astype(str).map(index).to_numpy(dtype=int)]
+    end = xy[drawn["destination"].astype(str).map(index).to_numpy(dtype=int)]
+    flow = _floats(drawn["flow"])
+    # Thinner lines when there are many, so that the busiest still stand out.
+    widest = 4.0 if len(drawn) <= 200 else 1.5
+    widths = 0.3 + widest * flow / (flow.max() or 1.0)
+    binding = drawn["at_capacity"].astype(bool).to_numpy()
+    segments = np.stack([start, end], axis=1)
+    for selected, colour, style, z in ((~binding, _FLOW_COLOUR, "solid", 1), (binding, _BINDING_COLOUR, "dashed", 2)):
+        if selected.any():
+            axes.add_collection(
+                LineCollection(
+                    segments[selected], linewidths=widths[selected], colors=colour,
+                    linestyles=style, alpha=0.75, zorder=z,
+                )
+            )
+
+
+def _draw_sites(axes, xy: np.ndarray, sites: pd.DataFrame) -> None:
+    """A marker per site by kind; codes beside them when there are at most 80 sites."""
+    kinds = sites["kind"].fillna("").astype(str).to_numpy()
+    for kind, style in KIND_STYLE.items():
+        chosen = kinds == kind
+        if chosen.any():
+            axes.scatter(
+                xy[chosen, 0], xy[chosen, 1], marker=style["marker"], color=style["color"],
+                s=60 if len(sites) <= 200 else 12, zorder=3, edgecolors="white", linewidths=0.6,
+            )
+    if len(sites) <= 80:
+        for code, (x, y) in zip(sites["site"].astype(str), xy):
+            axes.annotate(code, (x, y), textcoords="offset points", xytext=(5, 5), fontsize=8, zorder=4)

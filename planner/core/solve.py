@@ -4,7 +4,7 @@ OR-Tools' ``SimpleMinCostFlow`` implements Goldberg and Tarjan's cost-scaling
 push-relabel algorithm on integer costs and capacities [1]_. It is not a
 network simplex, and it does not hand back node potentials; the planner
 computes those itself from the residual graph of the optimal flow
-(:mod:`planner.duals`), so the prices do not depend on the algorithm that found
+(:mod:`planner.core.prices`), so the prices do not depend on the algorithm that found
 the flow, and the certificate proves them.
 
 Lower bounds (lane minimum commitments) are removed before solving in the
@@ -25,7 +25,7 @@ from dataclasses import dataclass
 import numpy as np
 from ortools.graph.python import min_cost_flow
 
-from planner.instance import Instance, check_int64
+from planner.core.network import Instance, check_int64
 
 OPTIMAL = "optimal"
 INFEASIBLE = "infeasible"
@@ -76,14 +76,15 @@ def solve_flow(inst: Instance) -> FlowSolution:
 
     Raises
     ------
-    planner.instance.OverflowError_
+    planner.core.network.OverflowError_
         When the scaled figures could overflow 64-bit integers.
     RuntimeError
         When the solver reports a status other than optimal or infeasible.
 
     Examples
     --------
-    >>> from planner.instance import WeekData, assemble_instance
+    >>> from planner.core.week import WeekData
+    >>> from planner.core.network import assemble_instance
     >>> w = WeekData.from_arrays([0, 0, 2], [0, 1], [2, 2], [10, 30],
     ...                          supply=[3, 4, 0], demand=[0, 0, 5])
     >>> sol = solve_flow(assemble_instance(w))

@@ -7,9 +7,10 @@ from pathlib import Path
 
 from sqlalchemy import Engine, text
 
-from planner.generate import demo_network, write_folder
-from planner.ingest import load_folder
-from planner.runs import RunSummary, solve_period
+from planner.database.ingest import load_folder
+from planner.runs.weekly import RunSummary, solve_period
+from planner.synthetic.demo_network import demo_network
+from planner.synthetic.frames import write_folder
 
 
 @dataclass

@@ -1,4 +1,4 @@
-"""Site prices from the residual graph of an optimal flow: potentials, exact ranges, certificate.
+"""Site prices from the residual graph of an optimal flow: exact ranges and the marginal route.
 
 Sign convention: a potential ``pi`` is dual feasible when every arc of the
 residual graph has a non-negative reduced cost ``r = c + pi(tail) - pi(head)``
@@ -17,12 +17,8 @@ optimal duals at a node ``v`` is
   at ``v`` (the left derivative),
 
 with distances in the residual graph. Both vectors are optimal duals. They are
-computed from one feasible potential (a Bellman-Ford pass) and two Dijkstra
-runs on the non-negative reduced costs [1]_ [2]_.
-
-The certificate checks, on the scaled integers, primal feasibility, dual
-feasibility and strong duality: the primal cost equals the dual objective
-``-sum_v b_v pi_v + sum_a (l_a max(r_a, 0) + u_a min(r_a, 0))`` exactly [3]_.
+computed from one feasible potential (:func:`planner.core.residual.feasible_potential`)
+and two Dijkstra runs on the non-negative reduced costs [1]_ [2]_.
 
 References
 ----------
@@ -31,8 +27,6 @@ References
    conditions, reduced costs) and section 4.6 (potentials and Dijkstra).
 .. [2] D. B. Johnson, "Efficient algorithms for shortest paths in sparse
    networks", Journal of the ACM 24(1), 1977 (reweighting with a potential).
-.. [3] L. V. Kantorovich, "On the translocation of masses", Doklady Akademii
-   Nauk SSSR 37, 1942 (the dual of the transport problem).
 """
 
 from __future__ import annotations
@@ -43,120 +37,29 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.csgraph import dijkstra
 
-from planner.instance import INT64_MAX, Instance
-from planner.solve import exact_dot
+from planner.core.network import Instance
+from planner.core.residual import UNLIMITED, DualError, Residual
 
-#: Residual capacity of an arc without an upper bound.
-UNLIMITED = INT64_MAX
+__all__ = [
+    "HIGH_REASON",
+    "LOW_REASON",
+    "PriceRanges",
+    "capacity_values",
+    "marginal_path",
+    "price_ranges",
+    "reduced_costs",
+]
 
-
-class DualError(RuntimeError):
-    """The flow is not optimal (a negative residual cycle) or a check failed."""
-
-
-@dataclass(frozen=True)
-class Residual:
-    """Residual graph of a flow: one row per residual arc.
-
-    ``arc`` is the index of the instance arc; ``forward`` says whether the
-    residual arc follows it (spare capacity, cost ``c``) or runs against it
-    (positive flow above the lower bound, cost ``-c``).
-    """
-
-    tail: np.ndarray
-    head: np.ndarray
-    weight: np.ndarray
-    capacity: np.ndarray
-    arc: np.ndarray
-    forward: np.ndarray
-
-
-def residual_graph(inst: Instance, flow: np.ndarray) -> Residual:
-    """Residual graph of ``flow`` in ``inst``.
-
-    Examples
-    --------
-    >>> from planner.instance import WeekData, assemble_instance
-    >>> from planner.solve import solve_flow
-    >>> inst = assemble_instance(WeekData.from_arrays([0, 2], [0], [1], [7],
-    ...                                                supply=[5, 0], demand=[0, 5]))
-    >>> res = residual_graph(inst, solve_flow(inst).flow)
-    >>> sorted(zip(res.tail.tolist(), res.head.tolist(), res.weight.tolist()))
-    [(0, 1, 7), (0, 2, 0), (1, 0, -7)]
-    """
-    flow = np.asarray(flow, dtype=np.int64)
-    fwd = np.flatnonzero(inst.unlimited | (flow < inst.upper))
-    bwd = np.flatnonzero(flow > inst.lower)
-    fcap = np.where(inst.unlimited[fwd], UNLIMITED, inst.upper[fwd] - flow[fwd])
-    return Residual(
-        tail=np.concatenate([inst.tail[fwd], inst.head[bwd]]),
-        head=np.concatenate([inst.head[fwd], inst.tail[bwd]]),
-        weight=np.concatenate([inst.cost[fwd], -inst.cost[bwd]]),
-        capacity=np.concatenate([fcap, flow[bwd] - inst.lower[bwd]]),
-        arc=np.concatenate([fwd, bwd]),
-        forward=np.concatenate([np.ones(fwd.shape[0], bool), np.zeros(bwd.shape[0], bool)]),
-    )
-
-
-def feasible_potential(inst: Instance, res: Residual) -> np.ndarray:
-    """A dual-feasible potential, normalised so that ``pi(SPARE) = 0``.
-
-    A label-correcting Bellman-Ford pass from a virtual source joined to every
-    node at cost 0, processing only the nodes whose label changed in the
-    previous round, fully vectorised.
-
-    Parameters
-    ----------
-    inst : Instance
-    res : Residual
-        Residual graph of an optimal flow.
-
-    Returns
-    -------
-    numpy.ndarray of int64
-
-    Raises
-    ------
-    DualError
-        When the residual graph has a negative cycle, i.e. the flow is not optimal.
-
-    References
-    ----------
-    .. [1] R. Bellman, "On a routing problem", Quarterly of Applied
-       Mathematics 16, 1958.
-    """
-    n = inst.n_nodes
-    order = np.argsort(res.tail, kind="stable")
-    tail = res.tail[order]
-    head = res.head[order]
-    weight = res.weight[order]
-    indptr = np.searchsorted(tail, np.arange(n + 1))
-    d = np.zeros(n, dtype=np.int64)
-    # Only negative arcs can lower a label from its start value 0.
-    active = np.unique(tail[weight < 0])
-    for _ in range(n + 1):
-        if active.shape[0] == 0:
-            return d - d[inst.spare]
-        idx = _out_arcs(indptr, active)
-        cand = d[tail[idx]] + weight[idx]
-        to = head[idx]
-        better = cand < d[to]
-        to, cand = to[better], cand[better]
-        np.minimum.at(d, to, cand)
-        active = np.unique(to)
-    raise DualError("the residual graph has a negative cycle: the flow is not optimal")
-
-
-def _out_arcs(indptr: np.ndarray, nodes: np.ndarray) -> np.ndarray:
-    """Indices of the arcs leaving ``nodes`` in a CSR layout, concatenated."""
-    starts = indptr[nodes]
-    counts = indptr[nodes + 1] - starts
-    total = int(counts.sum())
-    if total == 0:
-        return np.empty(0, dtype=np.int64)
-    # arange per node without a Python loop: offsets restart at each node.
-    shift = np.repeat(starts - np.cumsum(counts) + counts, counts)
-    return np.arange(total, dtype=np.int64) + shift
+#: Why ``price_high`` is NULL at a site.
+HIGH_REASON = (
+    "no spare route into this site: all supply is in use or every route to it is at capacity, "
+    "so one more unit cannot be had at any cost"
+)
+#: Why ``price_low`` is NULL at a site.
+LOW_REASON = (
+    "no route takes a unit from this site back to spare supply: nothing flows into it that "
+    "could be cut and no lane out of it has room"
+)
 
 
 @dataclass(frozen=True)
@@ -205,8 +108,10 @@ def price_ranges(inst: Instance, res: Residual, potential: np.ndarray) -> PriceR
     --------
     One plant with 2 spare units, one customer; the lane's cost is the price:
 
-    >>> from planner.instance import WeekData, assemble_instance
-    >>> from planner.solve import solve_flow
+    >>> from planner.core.week import WeekData
+    >>> from planner.core.network import assemble_instance
+    >>> from planner.core.solve import solve_flow
+    >>> from planner.core.residual import feasible_potential, residual_graph
     >>> inst = assemble_instance(WeekData.from_arrays([0, 2], [0], [1], [7],
     ...                                                supply=[5, 0], demand=[0, 3]))
     >>> res = residual_graph(inst, solve_flow(inst).flow)
@@ -329,78 +234,6 @@ class _ShortestPaths:
                 break
             anc = nxt
         return np.where(self.reached, val, 0)
-
-
-@dataclass(frozen=True)
-class Certificate:
-    """Optimality certificate of a flow and a potential, exact on scaled integers."""
-
-    max_conservation_violation: int
-    max_bound_violation: int
-    min_reduced_cost: int | None
-    primal_cost: int
-    dual_objective: int
-
-    @property
-    def gap(self) -> int:
-        return self.primal_cost - self.dual_objective
-
-    @property
-    def ok(self) -> bool:
-        return (
-            self.max_conservation_violation == 0
-            and self.max_bound_violation == 0
-            and (self.min_reduced_cost is None or self.min_reduced_cost >= 0)
-            and self.gap == 0
-        )
-
-
-def certify(inst: Instance, flow: np.ndarray, price: np.ndarray) -> Certificate:
-    """Check primal feasibility, dual feasibility and strong duality exactly.
-
-    Parameters
-    ----------
-    inst : Instance
-    flow : numpy.ndarray of int64, one entry per arc.
-    price : numpy.ndarray of int64, one potential per node.
-
-    Returns
-    -------
-    Certificate
-
-    Examples
-    --------
-    >>> from planner.instance import WeekData, assemble_instance
-    >>> from planner.solve import solve_flow
-    >>> inst = assemble_instance(WeekData.from_arrays([0, 2], [0], [1], [7],
-    ...                                                supply=[5, 0], demand=[0, 3]))
-    >>> flow = solve_flow(inst).flow
-    >>> res = residual_graph(inst, flow)
-    >>> cert = certify(inst, flow, price_ranges(inst, res, feasible_potential(inst, res)).price)
-    >>> cert.ok, cert.primal_cost, cert.dual_objective
-    (True, 21, 21)
-    """
-    flow = np.asarray(flow, dtype=np.int64)
-    pi = np.asarray(price, dtype=np.int64)
-    net = inst.supply.copy()
-    np.subtract.at(net, inst.tail, flow)
-    np.add.at(net, inst.head, flow)
-    conservation = int(np.abs(net).max()) if net.shape[0] else 0
-    bounds = int(max(0, (inst.lower - flow).max(initial=0), (flow - inst.upper).max(initial=0)))
-
-    r = inst.cost + pi[inst.tail] - pi[inst.head]
-    forward_open = inst.unlimited | (flow < inst.upper)
-    backward_open = flow > inst.lower
-    candidates = np.concatenate([r[forward_open], -r[backward_open]])
-    min_rc = int(candidates.min()) if candidates.shape[0] else None
-
-    primal = exact_dot(inst.cost, flow)
-    dual = (
-        -exact_dot(inst.supply, pi)
-        + exact_dot(inst.lower, np.maximum(r, 0))
-        + exact_dot(inst.upper, np.minimum(r, 0))
-    )
-    return Certificate(conservation, bounds, min_rc, primal, dual)
 
 
 def reduced_costs(inst: Instance, price: np.ndarray) -> np.ndarray:

@@ -1,7 +1,7 @@
 """Persist a run: one ``solve_run`` row plus its flows and site prices, in one transaction.
 
 Bulk rows go in with PostgreSQL COPY. The per-lane flows and the stock rows,
-the large tables, go in binary (:mod:`planner.pgbinary`: NUMERIC digits built
+the large tables, go in binary (:mod:`planner.database.pgbinary`: NUMERIC digits built
 by numpy from the scaled integers); the per-site prices, with their reason
 texts, as text, where scaled integers are written as exact decimal literals
 in scientific notation (``123456e-4`` is the NUMERIC ``12.3456``). Either
@@ -16,11 +16,13 @@ from decimal import Decimal
 import numpy as np
 from sqlalchemy import Connection, text
 
-from planner.duals import UNLIMITED
-from planner.instance import ArcKind, Instance, SiteKind
-from planner.optimize import Outcome, shortage_units, spare_units
-from planner.pgbinary import Column, copy_binary
-from planner.snapshot import Scaling
+from planner.core.network import ArcKind, Instance
+from planner.core.optimize import Outcome, shortage_units, spare_units
+from planner.core.prices import HIGH_REASON, LOW_REASON
+from planner.core.residual import UNLIMITED
+from planner.core.week import SiteKind
+from planner.database.pgbinary import Column, copy_binary
+from planner.database.snapshot import Scaling
 
 NULL = "\\N"
 
@@ -160,41 +162,55 @@ def store_results(
         Which lanes exist in which period (a horizon's periods may differ);
         all of them by default.
     """
-    cd, qd = scaling.cost_decimals, scaling.quantity_decimals
-    flow, ranges, reduced, cap_value = outcome.flow, outcome.ranges, outcome.reduced, outcome.capacity_value
-    run = str(run_id)
-
-    # Flows, reduced costs and capacity values of every lane of every period.
-    n_periods, n_sites = inst.site_node.shape
+    ids = _RunIds(run_id, scaling, np.asarray(period_ids), np.asarray(site_ids), np.asarray(lane_ids), site_kind)
     if lane_present is None:
-        lane_present = np.ones((n_periods, len(lane_ids)), dtype=bool)
+        lane_present = np.ones((inst.site_node.shape[0], len(lane_ids)), dtype=bool)
+    _store_lane_flows(conn, ids, inst, outcome, lane_present)
+    _store_site_prices(conn, ids, inst, outcome)
+    _store_stock(conn, ids, inst, outcome)
+
+
+@dataclass(frozen=True)
+class _RunIds:
+    """A run's id and precision, and the database ids behind the instance's indices."""
+
+    run_id: int
+    scaling: Scaling
+    period_ids: np.ndarray
+    site_ids: np.ndarray
+    lane_ids: np.ndarray
+    site_kind: np.ndarray
+
+
+def _store_lane_flows(conn: Connection, ids: _RunIds, inst: Instance, outcome: Outcome, lane_present) -> None:
+    """Flows, reduced costs and capacity values of every lane of every period."""
+    cd, qd = ids.scaling.cost_decimals, ids.scaling.quantity_decimals
+    flow = outcome.flow
     t_idx, l_idx = np.nonzero(lane_present)
     arcs = inst.lane_arc[t_idx, l_idx]
-    lane_db = np.asarray(lane_ids)[l_idx]
-    period_db = np.asarray(period_ids)[t_idx]
     binding = (~inst.unlimited[arcs]) & (flow[arcs] >= inst.upper[arcs])
     _copy_figures(
         conn, "run_flow", ["run_id", "period_id", "lane_id", "flow", "reduced_cost", "capacity_value"],
-        run_id, period_db, lane_db,
-        [(flow[arcs], qd, None), (reduced[arcs], cd, None), (cap_value[arcs], cd, binding)],
+        ids.run_id, ids.period_ids[t_idx], ids.lane_ids[l_idx],
+        [(flow[arcs], qd, None), (outcome.reduced[arcs], cd, None), (outcome.capacity_value[arcs], cd, binding)],
     )
 
-    # Prices, ranges and per-site figures for every site of every period.
+
+def _store_site_prices(conn: Connection, ids: _RunIds, inst: Instance, outcome: Outcome) -> None:
+    """Prices, ranges and per-site figures for every site of every period."""
+    cd, qd = ids.scaling.cost_decimals, ids.scaling.quantity_decimals
+    flow, ranges = outcome.flow, outcome.ranges
+    n_periods, n_sites = inst.site_node.shape
     nodes = inst.site_node.reshape(-1)
     site_index = np.tile(np.arange(n_sites), n_periods)
     period_index = np.repeat(np.arange(n_periods), n_sites)
-    throughput_flow = _per_site(inst, flow, ArcKind.THROUGHPUT, n_periods, n_sites)
-    has_throughput = _per_site(inst, np.ones_like(flow), ArcKind.THROUGHPUT, n_periods, n_sites) > 0
+
+    def per_site(values, kind: ArcKind) -> np.ndarray:
+        return _per_site(inst, values, kind, n_periods, n_sites)
+
     at_capacity = (~inst.unlimited) & (flow >= inst.upper)
-    tfull = _per_site(inst, at_capacity.astype(np.int64), ArcKind.THROUGHPUT, n_periods, n_sites) > 0
-    tvalue = _per_site(inst, cap_value, ArcKind.THROUGHPUT, n_periods, n_sites)
-    shortage = _per_site(inst, flow, ArcKind.SHORTAGE, n_periods, n_sites)
-    spare = _per_site(inst, flow, ArcKind.TO_SPARE, n_periods, n_sites)
-    kind = site_kind[site_index]
-    is_customer = kind == SiteKind.CUSTOMER
-    is_plant = kind == SiteKind.PLANT
-    has_high = ranges.has_high[nodes]
-    has_low = ranges.has_low[nodes]
+    kind = ids.site_kind[site_index]
+    has_high, has_low = ranges.has_high[nodes], ranges.has_low[nodes]
     k = nodes.shape[0]
     _copy_rows(
         conn,
@@ -204,34 +220,40 @@ def store_results(
             "high_reason", "high_units", "throughput_flow", "throughput_value", "shortage", "spare",
         ],
         [
-            [run] * k,
-            list(map(str, np.asarray(period_ids)[period_index].tolist())),
-            list(map(str, np.asarray(site_ids)[site_index].tolist())),
+            [str(ids.run_id)] * k,
+            list(map(str, ids.period_ids[period_index].tolist())),
+            list(map(str, ids.site_ids[site_index].tolist())),
             decimal_text(ranges.price[nodes], cd),
             _with_nulls(decimal_text(ranges.low[nodes], cd), has_low),
             _with_nulls(decimal_text(ranges.high[nodes], cd), has_high),
             _reasons(~has_low, LOW_REASON, k),
             _reasons(~has_high, HIGH_REASON, k),
             _with_nulls(_units_text(ranges.high_units[nodes], qd), has_high),
-            _with_nulls(decimal_text(throughput_flow, qd), has_throughput),
-            _with_nulls(decimal_text(tvalue, cd), tfull),
-            _with_nulls(decimal_text(shortage, qd), is_customer),
-            _with_nulls(decimal_text(spare, qd), is_plant),
+            _with_nulls(decimal_text(per_site(flow, ArcKind.THROUGHPUT), qd),
+                        per_site(np.ones_like(flow), ArcKind.THROUGHPUT) > 0),
+            _with_nulls(decimal_text(per_site(outcome.capacity_value, ArcKind.THROUGHPUT), cd),
+                        per_site(at_capacity.astype(np.int64), ArcKind.THROUGHPUT) > 0),
+            _with_nulls(decimal_text(per_site(flow, ArcKind.SHORTAGE), qd), kind == SiteKind.CUSTOMER),
+            _with_nulls(decimal_text(per_site(flow, ArcKind.TO_SPARE), qd), kind == SiteKind.PLANT),
         ],
     )
 
-    # Stock carried out of each period (linked horizons).
+
+def _store_stock(conn: Connection, ids: _RunIds, inst: Instance, outcome: Outcome) -> None:
+    """Stock carried out of each period (linked horizons)."""
     stock_arcs = np.flatnonzero(inst.arc_kind == ArcKind.STOCK)
-    if stock_arcs.shape[0]:
-        capped = ~inst.unlimited[stock_arcs]
-        full = capped & (flow[stock_arcs] >= inst.upper[stock_arcs])
-        _copy_figures(
-            conn, "run_stock", ["run_id", "period_id", "site_id", "stock", "holding_cost", "storage_value"],
-            run_id,
-            np.asarray(period_ids)[inst.arc_period[stock_arcs]],
-            np.asarray(site_ids)[inst.arc_ref[stock_arcs]],
-            [(flow[stock_arcs], qd, None), (inst.cost[stock_arcs], cd, None), (cap_value[stock_arcs], cd, full)],
-        )
+    if stock_arcs.shape[0] == 0:
+        return
+    cd, qd = ids.scaling.cost_decimals, ids.scaling.quantity_decimals
+    flow = outcome.flow[stock_arcs]
+    full = ~inst.unlimited[stock_arcs] & (flow >= inst.upper[stock_arcs])
+    _copy_figures(
+        conn, "run_stock", ["run_id", "period_id", "site_id", "stock", "holding_cost", "storage_value"],
+        ids.run_id,
+        ids.period_ids[inst.arc_period[stock_arcs]],
+        ids.site_ids[inst.arc_ref[stock_arcs]],
+        [(flow, qd, None), (inst.cost[stock_arcs], cd, None), (outcome.capacity_value[stock_arcs], cd, full)],
+    )
 
 
 def _copy_figures(conn, table, names, run_id, period_db, ref_db, figures) -> None:
@@ -246,16 +268,6 @@ def _copy_figures(conn, table, names, run_id, period_db, ref_db, figures) -> Non
     ] + [Column("numeric", values, decimals, present=present) for values, decimals, present in figures]
     with conn.connection.driver_connection.cursor() as cur:
         copy_binary(cur, table, names, columns)
-
-
-HIGH_REASON = (
-    "no spare route into this site: all supply is in use or every route to it is at capacity, "
-    "so one more unit cannot be had at any cost"
-)
-LOW_REASON = (
-    "no route takes a unit from this site back to spare supply: nothing flows into it that "
-    "could be cut and no lane out of it has room"
-)
 
 
 def _reasons(missing: np.ndarray, reason: str, k: int) -> list[str]:

@@ -24,9 +24,9 @@ from typing import Callable, Iterable, Iterator
 from sqlalchemy import Connection, Engine, text
 from sqlalchemy.exc import SQLAlchemyError
 
+from planner.database.snapshot import Scaling, current_batch, run_fingerprint
 from planner.errors import PlannerError
-from planner.runs import RunSummary, solve_period
-from planner.snapshot import Scaling, current_batch, run_fingerprint
+from planner.runs.weekly import RunSummary, solve_period
 
 #: First key of the two-key advisory locks the planner takes (ASCII "PLAN").
 LOCK_NAMESPACE = 0x504C414E
@@ -77,7 +77,7 @@ def solve_locked(engine: Engine, period: str, scaling: Scaling) -> RunSummary:
 
 
 def _solve_in_worker(url: str, period: str, scaling: Scaling) -> RunSummary:
-    from planner.db import get_engine
+    from planner.database.connect import get_engine
 
     engine = get_engine(url)
     try:
@@ -115,7 +115,7 @@ def solve_many(
     workers = max(1, min(workers or os.cpu_count() or 1, len(periods)))
     outcomes: dict[str, WeekOutcome] = {}
     if workers == 1:
-        from planner.db import get_engine
+        from planner.database.connect import get_engine
 
         engine = get_engine(url)
         try:
@@ -177,7 +177,7 @@ def is_stale(conn: Connection, period: str, scaling: Scaling) -> tuple[bool, str
 
 def stale_periods(engine: Engine, scaling: Scaling = Scaling()) -> list[tuple[str, str]]:
     """``(period, reason)`` of every loaded week that ``resolve`` would solve."""
-    from planner.snapshot import loaded_periods
+    from planner.database.snapshot import loaded_periods
 
     with engine.connect() as conn:
         out = []
@@ -206,7 +206,7 @@ def resolve(
     list of WeekOutcome
         Only the weeks this process solved or tried to.
     """
-    from planner.snapshot import loaded_periods
+    from planner.database.snapshot import loaded_periods
 
     with engine.connect() as conn:
         weeks = [(p, *is_stale(conn, p, scaling)) for p in loaded_periods(conn)]

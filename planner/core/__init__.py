@@ -1,0 +1,19 @@
+"""The functional core: planning periods as integer arrays, solved and proved optimal, no I/O.
+
+=====================  ==========================================================
+:mod:`.week`            ``WeekData``: one period's input as scaled integers
+:mod:`.network`         ``Instance``: the min-cost-flow network of one or more periods
+:mod:`.solve`           the OR-Tools min-cost-flow solve
+:mod:`.residual`        residual graphs, the label-correcting pass, feasible potentials
+:mod:`.prices`          site prices with their exact ranges, the marginal route
+:mod:`.certificate`     the exact optimality certificate
+:mod:`.diagnose`        why a week has no plan: min cut of an infeasible week, unbounded cycles
+:mod:`.explain`         the marginal route behind a price, in words
+:mod:`.optimize`        the entry point: instance -> ``Outcome`` (flow, prices, certificate)
+=====================  ==========================================================
+
+The core works on numpy arrays and may import numpy, scipy, OR-Tools,
+:mod:`planner.errors` and its own modules, nothing else: never SQLAlchemy,
+psycopg, Alembic, pandas or matplotlib (``tests/test_layout.py`` checks this in
+a fresh interpreter). It is tested without a database.
+"""

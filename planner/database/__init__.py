@@ -1,0 +1,16 @@
+"""The database side: connecting, the schema, loading input, reading snapshots, storing results.
+
+=====================  ==========================================================
+:mod:`.connect`         URLs, the embedded server, engines
+:mod:`.migrate`         keeping the schema current (Alembic glue)
+:mod:`.models`          SQLAlchemy 2 typed models of the tables
+:mod:`.ingest`          CSV folders validated and loaded as one batch by COPY
+:mod:`.snapshot`        a period's snapshot -> ``WeekData``, scaled exactly in PostgreSQL
+:mod:`.results`         a run's row, flows, prices and stock, stored in one transaction
+:mod:`.pgbinary`        PostgreSQL binary COPY rows built by numpy
+=====================  ==========================================================
+
+May import the core, :mod:`planner.errors`, :mod:`planner.periods`,
+:mod:`planner.contract`, SQLAlchemy, psycopg, Alembic and pandas; never the
+runs, reports or command line.
+"""

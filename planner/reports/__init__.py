@@ -1,0 +1,13 @@
+"""Reports on stored runs: queries on the views, explanations, charts, the HTML report.
+
+=====================  ==========================================================
+:mod:`.queries`         the reporting views as pandas frames; the weekly report
+:mod:`.explain`         the marginal route of a stored run's price
+:mod:`.charts`          PNG charts (matplotlib Agg)
+:mod:`.html`            the self-contained weekly HTML report
+:mod:`.formats`         JSON-ready values for scripts
+=====================  ==========================================================
+
+May import the core, the database side, pandas and matplotlib; never the
+runs or the command line.
+"""
