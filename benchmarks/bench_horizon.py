@@ -39,6 +39,7 @@ from planner.core.solve import solve_flow
 from planner.core.week import NONE, SiteKind, WeekData, scale_exact
 from planner.database import connect as db
 from planner.database.ingest import load_folder
+from planner.database.migrate import ensure_schema
 from planner.database.snapshot import Scaling
 from planner.runs.horizon import solve_horizon
 from planner.synthetic.benchmark_network import benchmark_network
@@ -134,7 +135,7 @@ def weeks_of(frames: NetworkFrames, scaling: Scaling) -> tuple[list[str], list[W
 def through_database(url: str, frames: NetworkFrames, periods: list[str], bare: float) -> None:
     """Load the horizon's weeks and time ``solve_horizon`` on them."""
     engine = db.get_engine(db.database_url(url))
-    db.ensure_schema(engine)
+    ensure_schema(engine)
     with tempfile.TemporaryDirectory() as tmp:
         start = time.perf_counter()
         loaded = load_folder(engine, write_folder(frames, Path(tmp) / "horizon"))

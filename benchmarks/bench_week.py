@@ -20,6 +20,7 @@ from planner.core.network import assemble_instance
 from planner.core.solve import solve_flow
 from planner.database import connect as db
 from planner.database.ingest import load_folder
+from planner.database.migrate import ensure_schema
 from planner.database.snapshot import Scaling, read_snapshot
 from planner.runs.weekly import solve_period
 from planner.synthetic.benchmark_network import benchmark_network
@@ -39,7 +40,7 @@ def main() -> None:
     args = parser.parse_args()
 
     engine = db.get_engine(db.database_url(args.database_url))
-    db.ensure_schema(engine)
+    ensure_schema(engine)
     frames = benchmark_network(n_customers=args.customers, n_lanes=args.lanes)
     week = str(frames.supply["period"].iloc[0])
     with tempfile.TemporaryDirectory() as tmp:

@@ -35,6 +35,7 @@ from planner.core.network import assemble_instance
 from planner.core.solve import solve_flow
 from planner.database import connect as db
 from planner.database.ingest import load_folder
+from planner.database.migrate import ensure_schema
 from planner.database.snapshot import Scaling, read_snapshot
 from planner.runs.schedule import solve_many
 from planner.synthetic.benchmark_network import benchmark_network
@@ -63,7 +64,7 @@ def main() -> None:
 
     url = db.database_url(args.database_url)
     engine = db.get_engine(url)
-    db.ensure_schema(engine)
+    ensure_schema(engine)
     scaling = Scaling()
 
     start = time.perf_counter()
