@@ -18,7 +18,8 @@ optimal duals at a node ``v`` is
 
 with distances in the residual graph. Both vectors are optimal duals. They are
 computed from one feasible potential (:func:`planner.core.residual.feasible_potential`)
-and two Dijkstra runs on the non-negative reduced costs [1]_ [2]_.
+and two exact Dijkstra runs (:mod:`planner.core.paths`) on the non-negative
+reduced costs [1]_ [2]_.
 
 References
 ----------
@@ -34,17 +35,15 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-import scipy.sparse as sp
-from scipy.sparse.csgraph import dijkstra
 
 from planner.core.network import Instance
-from planner.core.residual import UNLIMITED, DualError, Residual
+from planner.core.paths import UNLIMITED, ArcTable, shortest_paths, tree_minimum
+from planner.core.residual import DualError, Residual
 
 __all__ = [
     "HIGH_REASON",
     "LOW_REASON",
     "PriceRanges",
-    "capacity_values",
     "marginal_path",
     "price_ranges",
     "reduced_costs",
@@ -125,12 +124,18 @@ def price_ranges(inst: Instance, res: Residual, potential: np.ndarray) -> PriceR
     if reduced.shape[0] and reduced.min() < 0:
         raise DualError("the potential is not dual feasible")
 
-    fwd = _ShortestPaths(n, res.tail, res.head, reduced, res.capacity, inst.spare)
-    rev = _ShortestPaths(n, res.head, res.tail, reduced, res.capacity, inst.spare)
-    has_high = fwd.reached
-    has_low = rev.reached
-    high = np.where(has_high, fwd.dist + pi, 0)
-    low = np.where(has_low, pi - rev.dist, 0)
+    forward = ArcTable.merge(n, res.tail, res.head, reduced, res.capacity)
+    fwd = shortest_paths(forward, [inst.spare])
+    rev = shortest_paths(ArcTable.merge(n, res.head, res.tail, reduced, res.capacity), [inst.spare])
+    has_high, has_low = fwd.reached[0], rev.reached[0]
+    high = np.where(has_high, fwd.dist[0] + pi, 0)
+    low = np.where(has_low, pi - rev.dist[0], 0)
+    tree_arc = fwd.pred_arc[0]
+    into = tree_arc >= 0
+    tree_cap = np.full(n, UNLIMITED, dtype=np.int64)
+    tree_cap[into] = forward.capacity[tree_arc[into]]
+    pred_high_arc = np.full(n, -1, dtype=np.int64)
+    pred_high_arc[into] = forward.arc[tree_arc[into]]
 
     # Stored price: high where finite; nodes that SPARE cannot reach form a set
     # with no residual arc entering from the reached set, so lifting the
@@ -147,108 +152,17 @@ def price_ranges(inst: Instance, res: Residual, potential: np.ndarray) -> PriceR
         low=low,
         has_high=has_high,
         has_low=has_low,
-        high_units=fwd.bottleneck(),
+        high_units=np.where(has_high, tree_minimum(fwd.pred[0], tree_cap), 0),
         price=price,
-        pred_high=fwd.pred,
-        pred_high_arc=fwd.pred_arc,
+        pred_high=fwd.pred[0],
+        pred_high_arc=pred_high_arc,
     )
-
-
-class _ShortestPaths:
-    """Dijkstra from one source on non-negative integer weights, checked exactly.
-
-    Parallel arcs are merged (least weight kept, capacities of the tied arcs
-    summed); the CSR matrix is built by hand so that zero weights stay
-    explicit entries (scipy's sparse constructors may drop or sum them).
-    """
-
-    def __init__(self, n, tail, head, weight, capacity, source):
-        key = tail.astype(np.int64) * n + head
-        # Group the parallel arcs (a stable sort on one key is much cheaper
-        # than a two-key lexsort), then take each group's least weight.
-        order = np.argsort(key, kind="stable")
-        key_s, w_s, cap_s = key[order], weight[order], capacity[order]
-        first = np.ones(key_s.shape[0], dtype=bool)
-        first[1:] = key_s[1:] != key_s[:-1]
-        group = np.cumsum(first) - 1
-        starts = np.flatnonzero(first)
-        w_min = np.minimum.reduceat(w_s, starts) if starts.shape[0] else w_s[:0]
-        tied = w_s == w_min[group]
-        # Sum tied capacities without wrapping int64: five or more tied
-        # unlimited arcs (modes of one lane) would overflow a clipped sum, so
-        # a group with an unlimited arc, or a finite sum past UNLIMITED // 4
-        # (judged in floating point), is unlimited.
-        cap_finite = np.where(tied & (cap_s < UNLIMITED), cap_s, 0)
-        if starts.shape[0]:
-            cap = np.add.reduceat(cap_finite, starts)
-            huge = np.logical_or.reduceat(tied & (cap_s >= UNLIMITED), starts) | (
-                np.add.reduceat(cap_finite.astype(np.float64), starts) >= UNLIMITED // 4
-            )
-            cap = np.where(huge, UNLIMITED, cap)
-        else:
-            cap = cap_finite[:0]
-        self.key = key_s[starts]
-        # Residual arc index of each group's first least-weight arc.
-        tied_at = np.flatnonzero(tied)
-        self.arc = order[tied_at[np.searchsorted(tied_at, starts)]]
-        self.weight = w_min
-        self.cap = cap
-        self.n = n
-        rows = self.key // n
-        cols = self.key % n
-        indptr = np.searchsorted(rows, np.arange(n + 1))
-        graph = sp.csr_matrix((w_min.astype(np.float64), cols, indptr), shape=(n, n))
-        dist, pred = dijkstra(graph, directed=True, indices=source, return_predecessors=True)
-        self.reached = np.isfinite(dist)
-        self.dist = np.where(self.reached, np.rint(np.where(self.reached, dist, 0)), 0).astype(np.int64)
-        self.pred = np.where(pred < 0, -1, pred).astype(np.int64)
-        self.source = source
-        self._check(rows, cols)
-
-    def _check(self, rows, cols):
-        # Exact Bellman conditions: no arc improves a label, and every reached
-        # node is tight on its tree arc. Together they prove exact distances.
-        r, c = self.reached[rows], self.reached[cols]
-        if np.any(r & ~c):
-            raise DualError("shortest-path check failed: an arc leaves the reached set")
-        both = r & c
-        if np.any(self.dist[cols[both]] > self.dist[rows[both]] + self.weight[both]):
-            raise DualError("shortest-path check failed: a distance is not minimal")
-        v = np.flatnonzero(self.reached & (self.pred >= 0))
-        pos = np.searchsorted(self.key, self.pred[v] * self.n + v)
-        if np.any(self.dist[v] != self.dist[self.pred[v]] + self.weight[pos]):
-            raise DualError("shortest-path check failed: a tree arc is not tight")
-        self.pred_arc = np.full(self.n, -1, dtype=np.int64)
-        self.pred_arc[v] = self.arc[pos]
-        self._tree_cap = np.full(self.n, UNLIMITED, dtype=np.int64)
-        self._tree_cap[v] = self.cap[pos]
-
-    def bottleneck(self) -> np.ndarray:
-        """Least residual capacity on the tree path from the source (pointer jumping)."""
-        anc = np.where(self.pred >= 0, self.pred, np.arange(self.n))
-        val = self._tree_cap.copy()
-        while True:
-            nxt = anc[anc]
-            val = np.minimum(val, val[anc])
-            if np.array_equal(nxt, anc):
-                break
-            anc = nxt
-        return np.where(self.reached, val, 0)
 
 
 def reduced_costs(inst: Instance, price: np.ndarray) -> np.ndarray:
     """Reduced cost ``c + pi(tail) - pi(head)`` of every arc (scaled integers)."""
     pi = np.asarray(price, dtype=np.int64)
     return inst.cost + pi[inst.tail] - pi[inst.head]
-
-
-def capacity_values(inst: Instance, flow: np.ndarray, reduced: np.ndarray) -> np.ndarray:
-    """Value of one more unit of capacity on each arc: ``-r`` where at capacity, else 0.
-
-    Arcs without an upper bound are never at capacity and get 0.
-    """
-    at_cap = (~inst.unlimited) & (np.asarray(flow) >= inst.upper)
-    return np.where(at_cap, np.maximum(-reduced, 0), 0)
 
 
 def marginal_path(inst: Instance, ranges: PriceRanges, res: Residual, node: int) -> list[tuple[int, bool]]:

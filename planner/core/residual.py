@@ -34,10 +34,9 @@ from dataclasses import dataclass
 import numpy as np
 
 from planner.core.network import Instance
-from planner.core.week import INT64_MAX
+from planner.core.paths import UNLIMITED
 
 __all__ = [
-    "UNLIMITED",
     "DualError",
     "LabelPass",
     "Residual",
@@ -46,10 +45,6 @@ __all__ = [
     "label_correcting",
     "residual_graph",
 ]
-
-#: Residual capacity of an arc without an upper bound.
-UNLIMITED = INT64_MAX
-
 
 class DualError(RuntimeError):
     """The flow is not optimal (a negative residual cycle) or a check failed."""
