@@ -20,4 +20,4 @@ Shared by all: :mod:`planner.errors` (errors a user can act on),
 files of a load folder).
 """
 
-__version__ = "0.1.0"
+__version__ = "0.2.0"

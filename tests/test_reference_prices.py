@@ -17,7 +17,7 @@ from hypothesis import strategies as st
 
 from planner.core.certificate import certify
 from planner.core.network import ArcKind, assemble_instance
-from planner.core.prices import capacity_values, reduced_costs
+from planner.core.optimize import optimize
 from planner.core.solve import OPTIMAL
 from planner.core.week import NONE, SiteKind, WeekData
 from tests.refmodels import (
@@ -342,9 +342,9 @@ def test_capacity_value_of_a_full_lane_hand_example():
     week = WeekData.from_arrays([SiteKind.PLANT, SiteKind.PLANT, SiteKind.CUSTOMER], [0, 1], [2, 2], [2, 7],
                                 supply=[10, 10, 0], demand=[0, 0, 8], lane_capacity=[5, NONE])
     inst = assemble_instance(week)
-    found = analyse(inst)
-    values = capacity_values(inst, found.flow, reduced_costs(inst, found.ranges.price))
-    assert found.cost == 31  # hand computed
+    found = optimize(inst)
+    values = found.capacity_value
+    assert found.certificate.primal_cost == 31  # hand computed
     assert values[inst.lane_arc[0]].tolist() == [5, 0]  # hand computed
     wider = resolved_cost(assemble_instance(replace_week(week, lane_capacity=[6, NONE])))
     assert wider == 26  # hand computed; re-solved with scipy HiGHS
@@ -359,38 +359,14 @@ def test_capacity_value_of_a_full_warehouse_hand_example():
                                 [1, 1, 9], supply=[10, 0, 0], demand=[0, 0, 6],
                                 throughput_capacity=[NONE, 4, NONE], handling_cost=[0, 1, 0])
     inst = assemble_instance(week)
-    found = analyse(inst)
-    values = capacity_values(inst, found.flow, reduced_costs(inst, found.ranges.price))
-    assert found.cost == 30  # hand computed
+    found = optimize(inst)
+    values = found.capacity_value
+    assert found.certificate.primal_cost == 30  # hand computed
     assert values[throughput_arc_of(inst, 1)] == 6  # hand computed
     wider = resolved_cost(assemble_instance(replace_week(week, throughput_capacity=[NONE, 5, NONE])))
     assert wider == 24  # hand computed: 5 * 3 + 1 * 9; re-solved with scipy HiGHS
 
 
-@PROPERTY
-@given(any_week)
-def test_capacity_value_bounds_the_saving_of_one_more_unit(week):
-    found = optimal(week)
-    inst, flow, ranges = found.inst, found.flow, found.ranges
-    values = capacity_values(inst, flow, reduced_costs(inst, ranges.price))
-    assert np.all(values >= 0)
-    full_lanes = [(lane, int(arc)) for lane, arc in enumerate(inst.lane_arc[0])
-                  if not inst.unlimited[arc] and flow[arc] == inst.upper[arc]]
-    full_warehouses = [(int(inst.arc_ref[arc]), int(arc)) for arc in np.flatnonzero(inst.arc_kind == ArcKind.THROUGHPUT)
-                       if not inst.unlimited[arc] and flow[arc] == inst.upper[arc]]
-    changes = [("lane_capacity", lane, arc) for lane, arc in full_lanes]
-    changes += [("throughput_capacity", site, arc) for site, arc in full_warehouses]
-    for column, index, arc in changes:
-        capacity = getattr(week, column).copy()
-        capacity[index] += 1
-        wider = resolved_cost(assemble_instance(replace_week(week, **{column: capacity})))
-        saving = found.cost - wider  # scipy HiGHS re-solve with one more unit of capacity
-        # Saving = max(0, -(c + dist(head -> tail))) <= max(0, -r) for any optimal dual
-        # (Ahuja, Magnanti & Orlin 1993, reduced cost optimality, from memory).
-        assert 0 <= saving <= values[arc]
-        tail, head = inst.tail[arc], inst.head[arc]
-        pinned = all(ranges.has_high[v] and ranges.has_low[v] and ranges.high[v] == ranges.low[v]
-                     for v in (tail, head))
-        if pinned:
-            assert saving == values[arc]  # unique prices at both ends: the value is exact
+# Exactness of every limit's value against re-solving: tests/test_limit_values.py.
+
 

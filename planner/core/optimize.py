@@ -18,14 +18,16 @@ from planner.core.diagnose import (
     diagnose_infeasible,
     find_unbounded_cycle,
 )
+from planner.core.limits import CAPACITY, LimitValues, limit_values
 from planner.core.network import ArcKind, Instance, OverflowError_
-from planner.core.prices import (
-    PriceRanges,
-    capacity_values,
-    price_ranges,
-    reduced_costs,
+from planner.core.paths import PathError
+from planner.core.prices import PriceRanges, price_ranges, reduced_costs
+from planner.core.residual import (
+    DualError,
+    Residual,
+    feasible_potential,
+    residual_graph,
 )
-from planner.core.residual import Residual, feasible_potential, residual_graph
 from planner.core.solve import INFEASIBLE, OPTIMAL, UNBOUNDED, solve_flow
 
 FAILED = "failed"
@@ -47,6 +49,7 @@ class Outcome:
     residual: Residual | None = None
     reduced: np.ndarray | None = None
     capacity_value: np.ndarray | None = None
+    limits: LimitValues | None = None
     certificate: Certificate | None = None
     solver_seconds: float = 0.0
     dual_seconds: float = 0.0
@@ -64,7 +67,7 @@ def optimize(
     lane_labels=None,
     period_codes=None,
 ) -> Outcome:
-    """Solve ``inst`` and derive its prices, ranges, capacity values and certificate.
+    """Solve ``inst`` and derive its prices, ranges, exact values of its limits and certificate.
 
     Parameters
     ----------
@@ -100,7 +103,10 @@ def optimize(
         )
         return Outcome(INFEASIBLE, diagnosis.message, solver_seconds=sol.solver_seconds)
 
-    return analyse_flow(inst, sol.flow, solver_seconds=sol.solver_seconds)
+    try:
+        return analyse_flow(inst, sol.flow, solver_seconds=sol.solver_seconds)
+    except (DualError, PathError) as err:
+        return Outcome(FAILED, f"the solver's flow could not be proved optimal: {err}", solver_seconds=sol.solver_seconds)
 
 
 def analyse_flow(inst: Instance, flow: np.ndarray, *, solver_seconds: float = 0.0) -> Outcome:
@@ -112,8 +118,9 @@ def analyse_flow(inst: Instance, flow: np.ndarray, *, solver_seconds: float = 0.
 
     Raises
     ------
-    planner.core.residual.DualError
-        When the residual graph of ``flow`` has a negative cycle.
+    planner.core.residual.DualError, planner.core.paths.PathError
+        When the residual graph of ``flow`` has a negative cycle, or a distance
+        fails its exact check.
     """
     start = time.perf_counter()
     res = residual_graph(inst, flow)
@@ -122,7 +129,11 @@ def analyse_flow(inst: Instance, flow: np.ndarray, *, solver_seconds: float = 0.
     ranges = price_ranges(inst, res, potential)
     t_ranges = time.perf_counter()
     reduced = reduced_costs(inst, ranges.price)
-    cap_value = capacity_values(inst, flow, reduced)
+    limits = limit_values(
+        inst, flow, res, ranges.price,
+        other_duals=((ranges.low, ranges.has_low), (ranges.high, ranges.has_high), (potential, np.ones(inst.n_nodes, bool))),
+    )
+    t_limits = time.perf_counter()
     cert = certify(inst, flow, ranges.price)
     end = time.perf_counter()
     out = Outcome(
@@ -131,14 +142,16 @@ def analyse_flow(inst: Instance, flow: np.ndarray, *, solver_seconds: float = 0.
         ranges=ranges,
         residual=res,
         reduced=reduced,
-        capacity_value=cap_value,
+        capacity_value=limits.per_arc(inst.n_arcs, CAPACITY),
+        limits=limits,
         certificate=cert,
         solver_seconds=solver_seconds,
         dual_seconds=end - start,
         timings={
             "potential": t_potential - start,
             "ranges": t_ranges - t_potential,
-            "certificate": end - t_ranges,
+            "limits": t_limits - t_ranges,
+            "certificate": end - t_limits,
         },
     )
     if not cert.ok:
