@@ -25,6 +25,7 @@ from planner.periods import WEEK_CODE_PATTERN
 __all__ = [
     "NAMING_CONVENTION",
     "RUN_KINDS",
+    "LIMIT_KINDS",
     "RUN_STATUSES",
     "SITE_KINDS",
     "Base",
@@ -35,6 +36,7 @@ __all__ = [
     "Period",
     "PeriodSnapshot",
     "RunFlow",
+    "RunLimit",
     "RunSitePrice",
     "Site",
     "SiteVersion",
@@ -55,6 +57,7 @@ NAMING_CONVENTION = {
 SITE_KINDS = ("plant", "warehouse", "customer")
 RUN_KINDS = ("week", "horizon")
 RUN_STATUSES = ("running", "optimal", "infeasible", "unbounded", "failed")
+LIMIT_KINDS = ("lane_capacity", "lane_minimum", "throughput", "storage")
 
 
 def _in_list(column: str, values: tuple[str, ...]) -> str:
@@ -262,6 +265,8 @@ class SolveRun(Base):
     spare_units: Mapped[Decimal | None]
     node_count: Mapped[int | None]
     arc_count: Mapped[int | None]
+    #: The planner version that stored the run (migration 0004; None before).
+    planner_version: Mapped[str | None] = mapped_column(sa.Text)
 
 
 class RunFlow(Base):
@@ -296,6 +301,8 @@ class RunSitePrice(Base):
     throughput_value: Mapped[Decimal | None]
     shortage: Mapped[Decimal | None]
     spare: Mapped[Decimal | None]
+    #: Price at the outgoing side of a warehouse split in two (migration 0004).
+    price_out: Mapped[Decimal | None]
 
 
 
@@ -311,6 +318,35 @@ class RunStock(Base):
     stock: Mapped[Decimal]
     holding_cost: Mapped[Decimal]
     storage_value: Mapped[Decimal | None]
+
+class RunLimit(Base):
+    """A limit at its bound in one period of a run, with its exact one-sided values (migration 0004).
+
+    ``limit_kind`` is ``lane_capacity``, ``lane_minimum`` (``ref_id`` a lane),
+    ``throughput`` or ``storage`` (``ref_id`` a site).
+    """
+
+    __tablename__ = "run_limit"
+    __table_args__ = (
+        sa.CheckConstraint(_in_list("limit_kind", LIMIT_KINDS), name="limit_kind"),
+        sa.CheckConstraint("loosen_value >= 0", name="loosen_value_nonnegative"),
+        sa.CheckConstraint("(tighten_cost IS NULL) = (tighten_blocked IS NOT NULL)", name="tighten_or_blocked"),
+    )
+
+    run_id: Mapped[int] = mapped_column(sa.BigInteger, primary_key=True)
+    period_id: Mapped[int] = mapped_column(primary_key=True)
+    limit_kind: Mapped[str] = mapped_column(sa.Text, primary_key=True)
+    ref_id: Mapped[int] = mapped_column(primary_key=True)
+    bound: Mapped[Decimal]
+    flow: Mapped[Decimal]
+    loosen_value: Mapped[Decimal]
+    loosen_units: Mapped[Decimal]
+    tighten_cost: Mapped[Decimal | None]
+    tighten_units: Mapped[Decimal | None]
+    tighten_blocked: Mapped[str | None] = mapped_column(sa.Text)
+    rate_low: Mapped[Decimal | None]
+    rate_high: Mapped[Decimal | None]
+
 
 #: The ``site_price_history`` view (created by migration 0001) for Core queries; it is
 #: deliberately not part of ``Base.metadata``, since it is not a table.

@@ -16,10 +16,13 @@ from decimal import Decimal
 import numpy as np
 from sqlalchemy import Connection, text
 
+from planner import __version__
+from planner.core.limits import CAPACITY, MINIMUM, TightenBlock
 from planner.core.network import ArcKind, Instance
 from planner.core.optimize import Outcome, shortage_units, spare_units
+from planner.core.paths import UNLIMITED
 from planner.core.prices import HIGH_REASON, LOW_REASON
-from planner.core.residual import UNLIMITED
+from planner.core.rates import limit_rate_ranges
 from planner.core.week import SiteKind
 from planner.database.pgbinary import Column, copy_binary
 from planner.database.snapshot import Scaling
@@ -108,6 +111,7 @@ def insert_run(
         "spare": None,
         "nodes": inst.n_nodes if inst is not None else None,
         "arcs": inst.n_arcs if inst is not None else None,
+        "version": __version__,
     }
     cert = outcome.certificate
     if cert is not None:
@@ -128,10 +132,10 @@ def insert_run(
             "input_fingerprint, status, message, finished_at, cost_decimals, quantity_decimals, "
             "solver_seconds, total_seconds, primal_cost, dual_objective, duality_gap, "
             "max_conservation_violation, max_bound_violation, min_reduced_cost, certificate_ok, "
-            "shortage_units, spare_units, node_count, arc_count) VALUES "
+            "shortage_units, spare_units, node_count, arc_count, planner_version) VALUES "
             "(:kind, :period_id, :first, :last, :batch, :fp, :status, :message, clock_timestamp(), "
             ":cd, :qd, :solver, :total, :primal, :dual, :gap, :cons, :bound, :minrc, :ok, "
-            ":short, :spare, :nodes, :arcs) RETURNING id"
+            ":short, :spare, :nodes, :arcs, :version) RETURNING id"
         ),
         values,
     ).one()
@@ -168,6 +172,7 @@ def store_results(
     _store_lane_flows(conn, ids, inst, outcome, lane_present)
     _store_site_prices(conn, ids, inst, outcome)
     _store_stock(conn, ids, inst, outcome)
+    _store_limits(conn, ids, inst, outcome)
 
 
 @dataclass(frozen=True)
@@ -211,6 +216,7 @@ def _store_site_prices(conn: Connection, ids: _RunIds, inst: Instance, outcome: 
     at_capacity = (~inst.unlimited) & (flow >= inst.upper)
     kind = ids.site_kind[site_index]
     has_high, has_low = ranges.has_high[nodes], ranges.has_low[nodes]
+    out_nodes = inst.site_out_node.reshape(-1)
     k = nodes.shape[0]
     _copy_rows(
         conn,
@@ -218,6 +224,7 @@ def _store_site_prices(conn: Connection, ids: _RunIds, inst: Instance, outcome: 
         [
             "run_id", "period_id", "site_id", "price", "price_low", "price_high", "low_reason",
             "high_reason", "high_units", "throughput_flow", "throughput_value", "shortage", "spare",
+            "price_out",
         ],
         [
             [str(ids.run_id)] * k,
@@ -235,6 +242,7 @@ def _store_site_prices(conn: Connection, ids: _RunIds, inst: Instance, outcome: 
                         per_site(at_capacity.astype(np.int64), ArcKind.THROUGHPUT) > 0),
             _with_nulls(decimal_text(per_site(flow, ArcKind.SHORTAGE), qd), kind == SiteKind.CUSTOMER),
             _with_nulls(decimal_text(per_site(flow, ArcKind.TO_SPARE), qd), kind == SiteKind.PLANT),
+            _with_nulls(decimal_text(ranges.price[out_nodes], cd), out_nodes != nodes),
         ],
     )
 
@@ -253,6 +261,72 @@ def _store_stock(conn: Connection, ids: _RunIds, inst: Instance, outcome: Outcom
         ids.period_ids[inst.arc_period[stock_arcs]],
         ids.site_ids[inst.arc_ref[stock_arcs]],
         [(flow, qd, None), (inst.cost[stock_arcs], cd, None), (outcome.capacity_value[stock_arcs], cd, full)],
+    )
+
+
+#: ``run_limit.limit_kind`` of each arc kind on the capacity side.
+_CAPACITY_KIND = {ArcKind.LANE: "lane_capacity", ArcKind.THROUGHPUT: "throughput", ArcKind.STOCK: "storage"}
+#: Why a limit cannot be tightened by one unit, per (blocked code, side).
+BLOCKED_REASON = {
+    (TightenBlock.BELOW_MINIMUM, CAPACITY): "one unit less capacity would fall below the minimum commitment or below 0",
+    (TightenBlock.NO_ROUTE, CAPACITY): (
+        "no other route can take the unit: with one unit less capacity the week has no feasible plan"
+    ),
+    (TightenBlock.ABOVE_CAPACITY, MINIMUM): "one more committed unit would exceed the lane's capacity",
+    (TightenBlock.NO_ROUTE, MINIMUM): (
+        "the extra committed unit has nowhere to go: the week would have no feasible plan"
+    ),
+}
+
+
+def _store_limits(conn: Connection, ids: _RunIds, inst: Instance, outcome: Outcome) -> None:
+    """Every limit at its bound with both one-sided values, and the rate range of lanes at a limit."""
+    limits = outcome.limits
+    k = limits.arc.shape[0]
+    if k == 0:
+        return
+    cd, qd = ids.scaling.cost_decimals, ids.scaling.quantity_decimals
+    arc, side = limits.arc, limits.side
+    kind = inst.arc_kind[arc]
+    lane = kind == ArcKind.LANE
+    ref = inst.arc_ref[arc]
+    names = np.array([_CAPACITY_KIND.get(ArcKind(int(c)), "") for c in kind], dtype=object)
+    names[lane & (side == MINIMUM)] = "lane_minimum"
+    ref_db = np.where(lane, ids.lane_ids[np.where(lane, ref, 0)], ids.site_ids[np.where(lane, 0, ref)])
+    bound = np.where(side == CAPACITY, inst.upper[arc], inst.lower[arc])
+    possible = limits.blocked == TightenBlock.NONE
+    reasons = np.full(k, NULL, dtype=object)
+    for (code, on_side), text_ in BLOCKED_REASON.items():
+        reasons[(limits.blocked == code) & (side == on_side)] = text_
+    rates = limit_rate_ranges(inst, limits)
+    low = np.full(k, "-Infinity", dtype=object)
+    high = np.full(k, "Infinity", dtype=object)
+    low[~lane], high[~lane] = NULL, NULL
+    rows = np.flatnonzero(lane)
+    low[rows[rates.has_low]] = decimal_text(rates.low[rates.has_low], cd)
+    high[rows[rates.has_high]] = decimal_text(rates.high[rates.has_high], cd)
+    _copy_rows(
+        conn,
+        "run_limit",
+        [
+            "run_id", "period_id", "limit_kind", "ref_id", "bound", "flow", "loosen_value", "loosen_units",
+            "tighten_cost", "tighten_units", "tighten_blocked", "rate_low", "rate_high",
+        ],
+        [
+            [str(ids.run_id)] * k,
+            list(map(str, ids.period_ids[np.maximum(inst.arc_period[arc], 0)].tolist())),
+            names.tolist(),
+            list(map(str, ref_db.tolist())),
+            decimal_text(bound, qd),
+            decimal_text(outcome.flow[arc], qd),
+            decimal_text(limits.loosen, cd),
+            _units_text(limits.loosen_units, qd),
+            _with_nulls(decimal_text(limits.tighten, cd), possible),
+            _with_nulls(_units_text(limits.tighten_units, qd), possible),
+            reasons.tolist(),
+            low.tolist(),
+            high.tolist(),
+        ],
     )
 
 
