@@ -30,20 +30,19 @@ import time
 from pathlib import Path
 
 import numpy as np
-import pandas as pd
 import sqlalchemy as sa
 
 from planner.core.network import ArcKind, Instance, time_expand
 from planner.core.optimize import optimize
 from planner.core.solve import solve_flow
-from planner.core.week import NONE, SiteKind, WeekData, scale_exact
+from planner.core.week import SiteKind
 from planner.database import connect as db
 from planner.database.ingest import load_folder
 from planner.database.migrate import ensure_schema
 from planner.database.snapshot import Scaling
 from planner.runs.horizon import solve_horizon
 from planner.synthetic.benchmark_network import benchmark_network
-from planner.synthetic.frames import NetworkFrames, write_folder
+from planner.synthetic.frames import NetworkFrames, frames_to_weeks, write_folder
 
 #: Fresh statistics after a large load, as autovacuum would gather them.
 ANALYZE_SNAPSHOT_TABLES = (
@@ -72,64 +71,6 @@ def with_storage(frames: NetworkFrames, seed: int) -> NetworkFrames:
     sites.loc[stocks, "holding_cost"] = np.round(rng.uniform(0.01, 0.05, stocks.sum()), 2)
     sites.loc[stocks, "storage_capacity"] = np.floor(typical * rng.uniform(0.5, 3.0, stocks.sum()))
     return NetworkFrames(sites=sites, supply=frames.supply, demand=frames.demand, lanes=frames.lanes)
-
-
-def weeks_of(frames: NetworkFrames, scaling: Scaling) -> tuple[list[str], list[WeekData]]:
-    """One scaled ``WeekData`` per week, over one site list and one lane list."""
-    cd, qd = scaling.cost_decimals, scaling.quantity_decimals
-    sites = frames.sites
-    n = len(sites)
-    index = pd.Series(np.arange(n), index=sites["site"].to_numpy())
-    kind = sites["kind"].map(KINDS).to_numpy(np.int8)
-    throughput = scale_exact(sites["throughput_capacity"].to_numpy(float), qd, "throughput_capacity")
-    handling = np.maximum(scale_exact(sites["handling_cost"].to_numpy(float), cd, "handling_cost"), 0)
-    holding = np.maximum(scale_exact(sites["holding_cost"].to_numpy(float), cd, "holding_cost"), 0)
-    storage = scale_exact(sites["storage_capacity"].to_numpy(float), qd, "storage_capacity")
-    storage[np.isnan(sites["storage_capacity"].to_numpy(float))] = 0
-
-    periods = sorted(frames.lanes["period"].unique())
-    supply_by, demand_by, lanes_by = (
-        dict(tuple(f.groupby("period"))) for f in (frames.supply, frames.demand, frames.lanes)
-    )
-    first = lanes_by[periods[0]]
-    origin = index[first["origin"].to_numpy()].to_numpy()
-    destination = index[first["destination"].to_numpy()].to_numpy()
-    key = (first["origin"] + "|" + first["destination"] + "|" + first["mode"]).to_numpy()
-    weeks = []
-    for period in periods:
-        lanes = lanes_by[period]
-        # benchmark_network gives every week the same lanes in the same order.
-        week_key = (lanes["origin"] + "|" + lanes["destination"] + "|" + lanes["mode"]).to_numpy()
-        assert np.array_equal(week_key, key)
-        supply = np.zeros(n, np.int64)
-        s = supply_by[period]
-        s_idx = index[s["site"].to_numpy()].to_numpy()
-        supply[s_idx] = scale_exact(s["quantity"].to_numpy(float), qd, "supply")
-        demand = np.zeros(n, np.int64)
-        penalty = np.full(n, NONE, np.int64)
-        d = demand_by[period]
-        d_idx = index[d["site"].to_numpy()].to_numpy()
-        demand[d_idx] = scale_exact(d["quantity"].to_numpy(float), qd, "demand")
-        penalty[d_idx] = scale_exact(d["shortage_penalty"].to_numpy(float), cd, "shortage_penalty")
-        lane_min = scale_exact(lanes["min_quantity"].to_numpy(float), qd, "min_quantity")
-        weeks.append(
-            WeekData(
-                site_kind=kind,
-                supply=supply,
-                demand=demand,
-                shortage_penalty=penalty,
-                throughput_capacity=throughput,
-                handling_cost=handling,
-                lane_origin=origin,
-                lane_destination=destination,
-                lane_cost=scale_exact(lanes["unit_cost"].to_numpy(float), cd, "unit_cost"),
-                lane_capacity=scale_exact(lanes["capacity"].to_numpy(float), qd, "capacity"),
-                lane_min=np.maximum(lane_min, 0),
-                holding_cost=holding,
-                storage_capacity=storage,
-            )
-        )
-    return periods, weeks
 
 
 def through_database(url: str, frames: NetworkFrames, periods: list[str], bare: float) -> None:
@@ -179,7 +120,7 @@ def main() -> None:
         ),
         args.seed,
     )
-    periods, weeks = weeks_of(frames, scaling)
+    periods, weeks = frames_to_weeks(frames, scaling.cost_decimals, scaling.quantity_decimals)
     t_arrays = time.perf_counter()
     inst: Instance = time_expand(weeks, cost_scale=scaling.cost_scale, quantity_scale=scaling.quantity_scale)
     t_expand = time.perf_counter()

@@ -172,7 +172,6 @@ def highs_cost_ranging(week: WeekData) -> tuple[np.ndarray, np.ndarray, np.ndarr
     lp = plan_lp([week])
     model = highspy.HighsLp()
     a = sp.vstack([lp.a_eq] + ([lp.a_ub] if lp.a_ub is not None else [])).tocsc()
-    n_eq = lp.a_eq.shape[0]
     n_ub = 0 if lp.a_ub is None else lp.a_ub.shape[0]
     model.num_col_, model.num_row_ = a.shape[1], a.shape[0]
     model.col_cost_ = lp.cost

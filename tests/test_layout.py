@@ -30,7 +30,7 @@ ALLOWED = {
     "runs": {"core", "database", "synthetic"},  # the demo runs a synthetic network
     "reports": {"core", "database"},
     "cli": {"core", "database", "runs", "reports", "synthetic"},
-    "synthetic": set(),
+    "synthetic": {"core"},
 }
 IO_LIBRARIES = ("sqlalchemy", "psycopg", "alembic", "pandas", "matplotlib")
 #: Longest function, docstring included.

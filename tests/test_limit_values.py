@@ -20,7 +20,7 @@ import pytest
 from hypothesis import event, given
 from hypothesis import strategies as st
 
-from planner.core.limits import CAPACITY, MINIMUM, TightenBlock, ZeroComponents, limit_values
+from planner.core.limits import CAPACITY, MINIMUM, TightenBlock, ZeroComponents
 from planner.core.network import ArcKind, assemble_instance, time_expand
 from planner.core.optimize import optimize
 from planner.core.paths import UNLIMITED

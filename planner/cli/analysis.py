@@ -222,12 +222,13 @@ def _print_report(console, result, section: Section | None) -> None:
             console.print("no lane or warehouse at capacity")
         else:
             table = Table(
-                "rank", "kind", "capacity of", "value of one more unit", "capacity", "flow",
-                title="Top binding capacities",
+                "rank", "kind", "capacity of", "value of one more unit", "cost of one unit less",
+                "capacity", "flow", title="Top binding capacities",
             )
             for row in result.binding.itertuples(index=False):
                 table.add_row(
                     str(row.rank), row.kind, row.label, number(row.capacity_value),
+                    number(row.value_less) if row.less_blocked is None else "no plan",
                     units(row.capacity), units(row.flow),
                 )
             console.print(table)
@@ -288,4 +289,50 @@ def explain(
             else:
                 what = step.label if step.forward else f"one unit less: {step.label}"
             table.add_row(f"{step.kind}: {what}", f"{step.unit_cost:,.4f}", f"{step.running:,.4f}")
+        console.print(table)
+
+
+@app.command("rate-ranges")
+def rate_ranges_command(
+    period: str = typer.Option(..., "--period", "-p", help="ISO week."),
+    lane: Optional[list[str]] = typer.Option(None, "--lane", help="A lane as ORIGIN->DESTINATION MODE (repeatable)."),
+    site: Optional[str] = typer.Option(None, "--site", help="Only lanes leaving or entering this site."),
+    state: Optional[str] = typer.Option(None, "--state", help="Only lanes that are idle, in use, at capacity or at minimum."),
+    routes: Optional[bool] = typer.Option(None, "--routes/--no-routes", help="Show the route behind each end (default: for one lane)."),
+    run_id: Optional[int] = typer.Option(None, "--run", help="A week run of the period (default: its latest optimal run)."),
+    output_format: OutputFormat = typer.Option(OutputFormat.table, "--format", help="table, csv or json."),
+    database_url: Optional[str] = DATABASE_URL,
+) -> None:
+    """How far each lane's rate can move before the stored plan changes, and why.
+
+    Example: planner rate-ranges -p 2026-W49 --lane "W04->C34 road"
+    """
+    from planner.reports.rates import lane_rate_ranges
+
+    try:
+        found = lane_rate_ranges(
+            engine(database_url), period, lanes=lane, site=site, state=state, run_id=run_id,
+            routes=routes if routes is not None else len(lane or []) == 1,
+        )
+    except PlannerError as err:
+        fail(err)
+    rows = [
+        {"period": r.period, "lane": r.lane, "state": r.state, "rate": r.rate, "flow": r.flow,
+         "rate_low": r.low, "rate_high": r.high}
+        for r in found
+    ]
+    if output_format == OutputFormat.json:
+        print(json.dumps([{k: json_value(v) for k, v in row.items()} for row in rows], indent=2))
+    elif output_format == OutputFormat.csv:
+        import pandas as pd
+
+        print(pd.DataFrame(rows, columns=list(rows[0])).to_csv(index=False), end="")
+    elif any(r.low_route or r.high_route for r in found):
+        for r in found:
+            console.print(r.text(), markup=False, highlight=False, soft_wrap=True)
+    else:
+        table = Table("lane", "state", "flow", "rate", "lowest rate", "highest rate",
+                      title=f"Rate ranges in {period}", caption="'-': no limit that way")
+        for r in found:
+            table.add_row(r.lane, r.state, units(r.flow), number(r.rate), number(r.low), number(r.high))
         console.print(table)

@@ -106,7 +106,6 @@ def explain_node(
     >>> e.text()
     'plant A (value 0.00) -> lane A->W2 road 12.30 -> lane W2->C17 road 29.80 = 42.10'
     """
-    to_money = inst.quantity_scale / inst.cost_scale
     site = int(inst.node_site[node])
     period = int(inst.node_period[node])
     site_name = str(site_codes[site]) if site >= 0 else NodeRole(int(inst.node_role[node])).name
@@ -114,32 +113,9 @@ def explain_node(
     if not ranges.has_high[node]:
         return Explanation(site_name, period_name, None, reason=HIGH_REASON)
 
-    def name(s: int) -> str:
-        prefix = f"{site_kinds[s]} " if site_kinds is not None else ""
-        return f"{prefix}{site_codes[s]}"
-
-    steps: list[Step] = []
-    running = 0
-    for arc, forward in marginal_path(inst, ranges, res, node):
-        kind = ArcKind(int(inst.arc_kind[arc]))
-        cost = int(inst.cost[arc]) if forward else -int(inst.cost[arc])
-        running += cost
-        ref = int(inst.arc_ref[arc])
-        t = int(inst.arc_period[arc])
-        when = f" in {period_codes[t]}" if len(period_codes) > 1 and t >= 0 else ""
-        if kind == ArcKind.TO_SPARE:
-            label, k = name(ref) + when, "spare"
-        elif kind == ArcKind.SPARE_TO_SHORT:
-            label, k = "SHORT", "short-feed"
-        elif kind == ArcKind.LANE:
-            label, k = str(lane_labels[ref]) + when, "lane"
-        elif kind == ArcKind.THROUGHPUT:
-            label, k = name(ref) + when, "throughput"
-        elif kind == ArcKind.SHORTAGE:
-            label, k = name(ref) + when, "shortage"
-        else:
-            label, k = f"at {name(ref)} from {period_codes[t]}", "stock"
-        steps.append(Step(k, forward, label, cost * to_money, running * to_money))
+    names = RouteNames(site_codes, lane_labels, period_codes, site_kinds)
+    steps = route_steps(inst, marginal_path(inst, ranges, res, node), names)
+    to_money = inst.quantity_scale / inst.cost_scale
     return Explanation(site_name, period_name, float(ranges.high[node]) * to_money, steps)
 
 
@@ -169,3 +145,49 @@ def stored_flow(inst: Instance, lane_flow: np.ndarray, site_spare: np.ndarray,
         flow[sel] = np.asarray(per_ref, dtype=np.int64)[ref[sel]]
     flow[kind == ArcKind.SPARE_TO_SHORT] = int(np.asarray(site_shortage).sum())
     return flow
+
+
+@dataclass(frozen=True)
+class RouteNames:
+    """Words for the arcs of a route: site codes, lane labels, period codes, site kinds (optional)."""
+
+    site_codes: object
+    lane_labels: object
+    period_codes: object
+    site_kinds: object = None
+
+    def site(self, s: int) -> str:
+        prefix = f"{self.site_kinds[s]} " if self.site_kinds is not None else ""
+        return f"{prefix}{self.site_codes[s]}"
+
+
+def route_steps(inst: Instance, path: list[tuple[int, bool]], names: RouteNames) -> list[Step]:
+    """The steps of a route of ``(arc, forward)`` pairs, with unit costs and the running total.
+
+    A backward step carries one unit less along its arc (its cost counts negative).
+    """
+    to_money = inst.quantity_scale / inst.cost_scale
+    periods = names.period_codes
+    steps: list[Step] = []
+    running = 0
+    for arc, forward in path:
+        kind = ArcKind(int(inst.arc_kind[arc]))
+        cost = int(inst.cost[arc]) if forward else -int(inst.cost[arc])
+        running += cost
+        ref = int(inst.arc_ref[arc])
+        t = int(inst.arc_period[arc])
+        when = f" in {periods[t]}" if len(periods) > 1 and t >= 0 else ""
+        if kind == ArcKind.TO_SPARE:
+            label, k = names.site(ref) + when, "spare"
+        elif kind == ArcKind.SPARE_TO_SHORT:
+            label, k = "SHORT", "short-feed"
+        elif kind == ArcKind.LANE:
+            label, k = str(names.lane_labels[ref]) + when, "lane"
+        elif kind == ArcKind.THROUGHPUT:
+            label, k = names.site(ref) + when, "throughput"
+        elif kind == ArcKind.SHORTAGE:
+            label, k = names.site(ref) + when, "shortage"
+        else:
+            label, k = f"at {names.site(ref)} from {periods[t]}", "stock"
+        steps.append(Step(k, forward, label, cost * to_money, running * to_money))
+    return steps

@@ -114,7 +114,13 @@ class LimitValues:
 
 
 def limit_values(
-    inst: Instance, flow: np.ndarray, res: Residual, potential: np.ndarray, other_duals: tuple = ()
+    inst: Instance,
+    flow: np.ndarray,
+    res: Residual,
+    potential: np.ndarray,
+    other_duals: tuple = (),
+    *,
+    engine: str = "auto",
 ) -> LimitValues:
     """Exact one-sided values of every limit at its bound.
 
@@ -132,6 +138,8 @@ def limit_values(
         (for example the ``low`` and ``high`` vectors of the price ranges).
         Every optimal dual bounds a loosening value from above (its reduced
         cost on the arc); where one of them shows it is zero, no search is run.
+    engine : {"auto", "compiled", "scipy"}
+        The search engine (:func:`planner.core.search.run_searches`).
 
     Returns
     -------
@@ -157,7 +165,7 @@ def limit_values(
     flow = np.asarray(flow, dtype=np.int64)
     pi = np.asarray(potential, dtype=np.int64)
     r = inst.cost + pi[inst.tail] - pi[inst.head]
-    graph = ZeroComponents(inst.n_nodes, res, res.weight + pi[res.tail] - pi[res.head])
+    graph = ZeroComponents(inst.n_nodes, res, res.weight + pi[res.tail] - pi[res.head], engine=engine)
     cap = np.flatnonzero(np.isin(inst.arc_kind, LIMITED_KINDS) & ~inst.unlimited & (flow >= inst.upper))
     low = np.flatnonzero((inst.arc_kind == ArcKind.LANE) & (inst.lower > 0) & (flow <= inst.lower))
     duals = [(pi, np.ones(inst.n_nodes, dtype=bool))] + [
@@ -259,9 +267,12 @@ class ZeroComponents:
         The residual graph.
     reduced : numpy.ndarray
         Non-negative reduced length of each residual arc.
+    engine : {"auto", "compiled", "scipy"}
+        The search engine of :meth:`distances`.
     """
 
-    def __init__(self, n: int, res: Residual, reduced: np.ndarray) -> None:
+    def __init__(self, n: int, res: Residual, reduced: np.ndarray, *, engine: str = "auto") -> None:
+        self.engine = engine
         admissible = reduced == 0
         tail, head = res.tail[admissible], res.head[admissible]
         graph = sp.csr_matrix((np.ones(tail.shape[0]), (tail, head)), shape=(n, n))
@@ -320,11 +331,12 @@ class ZeroComponents:
         )
         return table, nodes.tail[best], nodes.head[best]
 
-    def distances(self, source, target, radius=None, *, engine: str = "auto") -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    def distances(self, source, target, radius=None, *, engine: str | None = None) -> tuple:
         """Reduced distance from each ``source`` to its ``target``, whether reached, and the path's capacity bound.
 
         With ``radius``, a target farther than its radius counts as not reached.
-        ``engine`` chooses the search (:func:`planner.core.search.run_searches`).
+        ``engine`` chooses the search (:func:`planner.core.search.run_searches`;
+        default: the one the graph was built with).
         """
         source = np.asarray(source, np.int64)
         target = np.asarray(target, np.int64)
@@ -349,7 +361,7 @@ class ZeroComponents:
         radius_of = None if radius is None else np.asarray(radius, np.int64)[apart]
         searches, order = Searches.grouped(self.comp[start[apart]], self.comp[goal[apart]], goal[apart], radius_of)
         order = apart[order]
-        found, path_units, exit_node = run_searches(table, lifting, searches, engine=engine)
+        found, path_units, exit_node = run_searches(table, lifting, searches, engine=engine or self.engine)
         ok = found >= 0
         dist[order] = np.where(ok, found, 0)
         reached[order] = ok

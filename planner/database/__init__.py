@@ -6,7 +6,8 @@
 :mod:`.models`          SQLAlchemy 2 typed models of the tables
 :mod:`.ingest`          CSV folders validated and loaded as one batch by COPY
 :mod:`.snapshot`        a period's snapshot -> ``WeekData``, scaled exactly in PostgreSQL
-:mod:`.results`         a run's row, flows, prices and stock, stored in one transaction
+:mod:`.results`         a run's row, flows, prices, stock and limit values, stored in one transaction
+:mod:`.reopen`          a stored week run read back as arrays (snapshot, instance, flow)
 :mod:`.pgbinary`        PostgreSQL binary COPY rows built by numpy
 =====================  ==========================================================
 

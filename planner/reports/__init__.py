@@ -3,6 +3,7 @@
 =====================  ==========================================================
 :mod:`.queries`         the reporting views as pandas frames; the weekly report
 :mod:`.explain`         the marginal route of a stored run's price
+:mod:`.rates`           rate ranges of a stored run's lanes, with their routes
 :mod:`.charts`          PNG charts (matplotlib Agg)
 :mod:`.html`            the self-contained weekly HTML report
 :mod:`.formats`         JSON-ready values for scripts

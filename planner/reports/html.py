@@ -201,9 +201,10 @@ def _binding_section(report: WeekReport) -> str:
             report.binding,
             {
                 "rank": "rank", "kind": "kind", "label": "capacity of",
-                "capacity_value": "value of one more unit", "capacity": "capacity", "flow": "flow",
+                "capacity_value": "value of one more unit", "value_less": "cost of one unit less",
+                "capacity": "capacity", "flow": "flow",
             },
-            {"rank": 0, "capacity_value": 2, "capacity": 0, "flow": 0},
+            {"rank": 0, "capacity_value": 2, "value_less": 2, "capacity": 0, "flow": 0},
         ),
     )
 

@@ -10,6 +10,7 @@ any one run:
 ``binding_capacity``    lanes and warehouses at capacity, ranked by value
 ``shortage``            customers left short and the penalty paid
 ``run_summary``         cost, dual objective, certificate, timings per run
+``limit_value``         every limit at its bound, both one-sided values
 =====================  =====================================================
 
 The functions here return pandas DataFrames (exact :class:`~decimal.Decimal`
@@ -39,6 +40,8 @@ __all__ = [
     "binding_capacities",
     "cost_breakdown",
     "format_number",
+    "full_without_value",
+    "limit_values",
     "lane_flows",
     "network_of_week",
     "previous_week",
@@ -51,7 +54,7 @@ __all__ = [
 ]
 
 #: The reporting views, in the order the README documents them.
-VIEWS = ("site_price_history", "lane_flow", "binding_capacity", "shortage", "run_summary")
+VIEWS = ("site_price_history", "lane_flow", "binding_capacity", "shortage", "run_summary", "limit_value")
 #: NOLOGIN role (cluster-wide) allowed to SELECT the views and EXECUTE their functions.
 READER_ROLE = "planner_reader"
 #: Sections of the weekly report, in the order they are shown.
@@ -235,9 +238,14 @@ def lane_flows(engine: Engine, period: str | None = None, *, run_id: int | None 
 
 
 def binding_capacities(
-    engine: Engine, period: str | None = None, *, top: int | None = None, run_id: int | None = None
+    engine: Engine,
+    period: str | None = None,
+    *,
+    top: int | None = None,
+    run_id: int | None = None,
+    full_without_value: bool = False,
 ) -> pd.DataFrame:
-    """Capacities in use to the limit, most valuable first, from ``binding_capacity``.
+    """Capacities used to the limit, most valuable first, from ``binding_capacity``.
 
     Parameters
     ----------
@@ -248,22 +256,69 @@ def binding_capacities(
         At most this many rows per call (by rank; default all).
     run_id : int, optional
         One run instead of the latest optimal run of each week.
+    full_without_value : bool
+        Also the capacities that are full but worth nothing more (status
+        ``full, no value``, no rank), after the ranked ones.
 
     Returns
     -------
     pandas.DataFrame
         ``period``, ``rank``, ``kind`` (``lane``, ``warehouse`` or ``storage``),
-        ``label``, ``capacity_value`` (what one more unit of capacity would save),
-        ``capacity``, ``flow``, ``origin``, ``destination``, ``mode``, ``site``,
-        ``starts_on``, ``run_id``.
+        ``label``, ``capacity_value`` (exactly what one more unit of capacity
+        saves), ``capacity``, ``flow``, ``origin``, ``destination``, ``mode``,
+        ``site``, ``starts_on``, ``run_id``, ``value_less`` (what one unit less
+        costs; NULL where it leaves no feasible plan), ``units_more``,
+        ``units_less`` (units each holds for at least), ``less_blocked`` (why
+        one unit less is impossible), ``status``.
     """
     _check_week(period)
     return _read(
         engine,
         f"SELECT * FROM {view_source('binding_capacity', run_id)} "
         "WHERE (CAST(:period AS text) IS NULL OR period = :period) "
+        "AND (:full OR status = 'binding') "
         "ORDER BY starts_on, rank, label LIMIT :top",
-        {"period": period, "top": top, "run_id": run_id},
+        {"period": period, "top": top, "run_id": run_id, "full": full_without_value},
+    )
+
+
+def full_without_value(engine: Engine, period: str, *, run_id: int | None = None) -> int:
+    """How many capacities of a week are full but worth nothing more (degeneracy)."""
+    _check_week(period)
+    with _connect(engine) as conn:
+        return int(
+            conn.execute(
+                text(
+                    f"SELECT count(*) FROM {view_source('binding_capacity', run_id)} "
+                    "WHERE period = :period AND status = 'full, no value'"
+                ),
+                {"period": period, "run_id": run_id},
+            ).scalar_one()
+        )
+
+
+def limit_values(engine: Engine, period: str | None = None, *, run_id: int | None = None) -> pd.DataFrame:
+    """Every limit at its bound with both one-sided values, from ``limit_value``, most valuable first.
+
+    Returns
+    -------
+    pandas.DataFrame
+        ``period``, ``kind`` (``lane capacity``, ``lane minimum``, ``warehouse
+        throughput``, ``storage``), ``label``, ``bound``, ``flow``, ``loosen_value``
+        (what one unit more capacity, or one unit less commitment, saves),
+        ``loosen_units``, ``tighten_cost`` (what one unit less capacity, or one
+        more unit committed, costs; NULL where impossible), ``tighten_units``,
+        ``tighten_blocked``, ``rate_low``, ``rate_high`` (the lane's rate range;
+        -Infinity / Infinity where open), ``unit_cost``, ``origin``,
+        ``destination``, ``mode``, ``site``, ``starts_on``, ``run_id``.
+    """
+    _check_week(period)
+    return _read(
+        engine,
+        f"SELECT * FROM {view_source('limit_value', run_id)} "
+        "WHERE (CAST(:period AS text) IS NULL OR period = :period) "
+        "ORDER BY starts_on, loosen_value DESC, label, kind",
+        {"period": period, "run_id": run_id},
     )
 
 
@@ -588,6 +643,12 @@ def week_report(engine: Engine, period: str, *, top: int = 10, run_id: int | Non
         )
     if previous_solved is None:
         notes.append(f"no optimal run of the previous week {previous} to compare prices with")
+    full = full_without_value(engine, period, run_id=run_id)
+    if full:
+        notes.append(
+            f"{full} more {'capacity is' if full == 1 else 'capacities are'} full but worth nothing more "
+            "(one more unit would save nothing: status 'full, no value' in binding_capacity)"
+        )
     return WeekReport(
         period=period,
         previous_period=previous,

@@ -1,7 +1,8 @@
 """Networks as the four tables of a load folder, and writing them as CSV files.
 
 :class:`NetworkFrames` holds a network in the CSV contract of the planner
-(:mod:`planner.contract`); :func:`write_folder` writes it as a load folder.
+(:mod:`planner.contract`); :func:`write_folder` writes it as a load folder and
+:func:`frames_to_weeks` turns it into scaled ``WeekData`` arrays.
 Every site name the generators invent is composed from the syllables of
 :data:`NAME_HEADS`, :data:`NAME_LINKS` and :data:`NAME_TAILS` (optionally
 followed by one of :data:`NAME_SUFFIXES`), so :data:`INVENTED_NAME` matches
@@ -15,9 +16,11 @@ import re
 from dataclasses import dataclass
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 
 from planner.contract import FILE_COLUMNS
+from planner.core.week import NONE, SiteKind, WeekData, scale_exact
 from planner.periods import parse_week, week_code
 
 __all__ = [
@@ -28,6 +31,7 @@ __all__ = [
     "NAME_TAILS",
     "NetworkFrames",
     "consecutive_weeks",
+    "frames_to_weeks",
     "write_folder",
 ]
 
@@ -171,3 +175,66 @@ def _whole_numbers(values: pd.Series, where: str) -> pd.Series:
     if fractional.any():
         raise ValueError(f"{where}: {numbers[fractional].iloc[0]} is not a whole number")
     return numbers.astype("Int64")
+
+
+def frames_to_weeks(frames: NetworkFrames, cost_decimals: int = 4, quantity_decimals: int = 0) -> tuple[list[str], list[WeekData]]:
+    """The weeks of a generated network as scaled ``WeekData``, over one site list and one lane list.
+
+    For benchmarks and tests that want the arrays without a database; the
+    network must give every week the same lanes in the same order (the
+    generators do).
+    """
+    cd, qd = cost_decimals, quantity_decimals
+    sites = frames.sites
+    n = len(sites)
+    index = pd.Series(np.arange(n), index=sites["site"].to_numpy())
+    kind = sites["kind"].map({"plant": SiteKind.PLANT, "warehouse": SiteKind.WAREHOUSE, "customer": SiteKind.CUSTOMER}).to_numpy(np.int8)
+    throughput = scale_exact(sites["throughput_capacity"].to_numpy(float), qd, "throughput_capacity")
+    handling = np.maximum(scale_exact(sites["handling_cost"].to_numpy(float), cd, "handling_cost"), 0)
+    holding = np.maximum(scale_exact(sites["holding_cost"].to_numpy(float), cd, "holding_cost"), 0)
+    storage = scale_exact(sites["storage_capacity"].to_numpy(float), qd, "storage_capacity")
+    storage[np.isnan(sites["storage_capacity"].to_numpy(float))] = 0
+
+    periods = sorted(frames.lanes["period"].unique())
+    supply_by, demand_by, lanes_by = (
+        dict(tuple(f.groupby("period"))) for f in (frames.supply, frames.demand, frames.lanes)
+    )
+    first = lanes_by[periods[0]]
+    origin = index[first["origin"].to_numpy()].to_numpy()
+    destination = index[first["destination"].to_numpy()].to_numpy()
+    key = (first["origin"] + "|" + first["destination"] + "|" + first["mode"]).to_numpy()
+    weeks = []
+    for period in periods:
+        lanes = lanes_by[period]
+        # benchmark_network gives every week the same lanes in the same order.
+        week_key = (lanes["origin"] + "|" + lanes["destination"] + "|" + lanes["mode"]).to_numpy()
+        assert np.array_equal(week_key, key)
+        supply = np.zeros(n, np.int64)
+        s = supply_by[period]
+        s_idx = index[s["site"].to_numpy()].to_numpy()
+        supply[s_idx] = scale_exact(s["quantity"].to_numpy(float), qd, "supply")
+        demand = np.zeros(n, np.int64)
+        penalty = np.full(n, NONE, np.int64)
+        d = demand_by[period]
+        d_idx = index[d["site"].to_numpy()].to_numpy()
+        demand[d_idx] = scale_exact(d["quantity"].to_numpy(float), qd, "demand")
+        penalty[d_idx] = scale_exact(d["shortage_penalty"].to_numpy(float), cd, "shortage_penalty")
+        lane_min = scale_exact(lanes["min_quantity"].to_numpy(float), qd, "min_quantity")
+        weeks.append(
+            WeekData(
+                site_kind=kind,
+                supply=supply,
+                demand=demand,
+                shortage_penalty=penalty,
+                throughput_capacity=throughput,
+                handling_cost=handling,
+                lane_origin=origin,
+                lane_destination=destination,
+                lane_cost=scale_exact(lanes["unit_cost"].to_numpy(float), cd, "unit_cost"),
+                lane_capacity=scale_exact(lanes["capacity"].to_numpy(float), qd, "capacity"),
+                lane_min=np.maximum(lane_min, 0),
+                holding_cost=holding,
+                storage_capacity=storage,
+            )
+        )
+    return periods, weeks

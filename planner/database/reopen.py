@@ -1,0 +1,88 @@
+"""A stored week run read back as arrays: its snapshot, its instance and the flow it stored.
+
+Explanations and rate ranges of a stored run are computed on the plan that was
+stored, not on a fresh solve: the run's own snapshot (its batch) is read at the
+run's precision, the instance is built from it, and the stored flows (lanes,
+warehouse throughput, spare supply, shortage) are put back on its arcs.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from sqlalchemy import Connection, text
+
+from planner.core.explain import stored_flow
+from planner.core.network import Instance, assemble_instance
+from planner.database.snapshot import Scaling, Snapshot, fetch_columns, read_snapshot
+from planner.errors import PlannerError
+
+__all__ = ["StoredWeek", "reopen_week"]
+
+
+@dataclass(frozen=True)
+class StoredWeek:
+    """An optimal week run read back."""
+
+    run_id: int
+    period: str
+    scaling: Scaling
+    snapshot: Snapshot
+    instance: Instance
+    flow: np.ndarray
+
+
+def reopen_week(conn: Connection, period: str, run_id: int | None = None) -> StoredWeek:
+    """The latest optimal run of ``period`` (or run ``run_id``) read back as arrays.
+
+    Raises
+    ------
+    PlannerError
+        When there is no such optimal week run.
+    """
+    row = conn.execute(
+        text(
+            "SELECT r.id, r.batch_id, r.cost_decimals, r.quantity_decimals FROM solve_run r "
+            "JOIN period p ON p.id = r.period_id WHERE p.code = :period AND r.kind = 'week' "
+            "AND r.status = 'optimal' AND (CAST(:run AS bigint) IS NULL OR r.id = :run) "
+            "ORDER BY r.finished_at DESC, r.id DESC LIMIT 1"
+        ),
+        {"period": period, "run": run_id},
+    ).first()
+    if row is None:
+        raise PlannerError(
+            f"no optimal run of {period}" + (f" with id {run_id}" if run_id else "")
+            + f"; solve it first with `planner solve --period {period}`"
+        )
+    run, batch, cd, qd = (int(v) for v in row)
+    scaling = Scaling(cd, qd)
+    snap = read_snapshot(conn, period, scaling, batch_id=batch)
+    params = {"q": scaling.quantity_scale, "r": run}
+    lanes = fetch_columns(
+        conn,
+        "SELECT lane_id, (flow * %(q)s)::bigint AS flow FROM run_flow WHERE run_id = %(r)s",
+        params,
+        ints=["lane_id", "flow"],
+    )
+    sites = fetch_columns(
+        conn,
+        "SELECT site_id, (coalesce(spare, 0) * %(q)s)::bigint AS spare, "
+        "(coalesce(shortage, 0) * %(q)s)::bigint AS shortage, "
+        "(coalesce(throughput_flow, 0) * %(q)s)::bigint AS throughput "
+        "FROM run_site_price WHERE run_id = %(r)s",
+        params,
+        ints=["site_id", "spare", "shortage", "throughput"],
+    )
+    inst = assemble_instance(snap.week, cost_scale=scaling.cost_scale, quantity_scale=scaling.quantity_scale)
+    lane_flow = np.zeros(snap.lane_id.shape[0], np.int64)
+    lane_flow[np.searchsorted(snap.lane_id, lanes["lane_id"])] = lanes["flow"]
+    per_site = np.searchsorted(snap.site_id, sites["site_id"])
+
+    def site_values(column: str) -> np.ndarray:
+        out = np.zeros(snap.site_id.shape[0], np.int64)
+        out[per_site] = sites[column]
+        return out
+
+    flow = stored_flow(inst, lane_flow, site_values("spare"), site_values("shortage"), site_values("throughput"))
+    return StoredWeek(run, period, scaling, snap, inst, flow)
