@@ -224,6 +224,7 @@ def _print_report(console, result, section: Section | None) -> None:
             table = Table(
                 "rank", "kind", "capacity of", "value of one more unit", "cost of one unit less",
                 "capacity", "flow", title="Top binding capacities",
+                caption="exact one-sided values; they differ where the plan is degenerate at that capacity",
             )
             for row in result.binding.itertuples(index=False):
                 table.add_row(

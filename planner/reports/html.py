@@ -195,9 +195,14 @@ def _moves_section(engine: Engine, report: WeekReport) -> str:
 def _binding_section(report: WeekReport) -> str:
     if report.binding.empty:
         return _section("Top binding capacities", f'<p style="{_NOTE}">No lane or warehouse is at capacity.</p>')
+    explained = (
+        f'<p style="{_NOTE}">Exact one-sided values: what one more unit of capacity saves, and what one unit '
+        "less costs. They differ where the plan is degenerate at that capacity; a capacity that is full but "
+        "worth nothing more is not ranked.</p>"
+    )
     return _section(
         "Top binding capacities",
-        _table(
+        explained + _table(
             report.binding,
             {
                 "rank": "rank", "kind": "kind", "label": "capacity of",
