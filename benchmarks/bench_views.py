@@ -225,6 +225,29 @@ def explain_ms(connection: psycopg.Connection, query: str, params: dict) -> tupl
     return float(_EXECUTION_TIME.search(plan).group(1)), int(_ROWS.search(plan).group(1)), plan
 
 
+#: Plan checks: a query, the index it must use, and the tables it must not scan whole.
+PLAN_CHECKS = (
+    ("SELECT * FROM lane_flow WHERE period = %(week)s", "pk_run_flow", ("solve_run", "run_flow", "run_site_price")),
+    ("SELECT * FROM binding_capacity WHERE period = %(week)s", "pk_run_flow", ("solve_run", "run_flow")),
+    ("SELECT * FROM shortage WHERE period = %(week)s", "pk_run_site_price", ("solve_run", "run_site_price")),
+    ("SELECT * FROM site_price_history WHERE site = 'C00017'", "pk_run_site_price", ("solve_run", "run_site_price")),
+    ("SELECT * FROM run_summary", "ix_solve_run_period_id_status_finished_at", ("run_flow", "run_site_price")),
+    ("SELECT * FROM lane_flow_of_run(1) WHERE origin = 'P0001'", "pk_run_flow", ("run_flow",)),
+)
+
+
+def check_plans(connection: psycopg.Connection, week: str) -> bool:
+    """Print, per query, whether its plan uses the expected index and scans no big table whole."""
+    good = True
+    for query, index, not_scanned in PLAN_CHECKS:
+        plan = "\n".join(row[0] for row in connection.execute(f"EXPLAIN {query}", {"week": week}).fetchall())
+        scanned = [t for t in not_scanned if re.search(rf"Seq Scan on {t}\b", plan)]
+        ok = f"using {index}" in plan and not scanned
+        good &= ok
+        print(f"  {'ok  ' if ok else 'FAIL'} {query}: uses {index}" + (f"; scans {', '.join(scanned)} whole" if scanned else ""))
+    return good
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     parser.add_argument("--database-url", default=None)
@@ -280,6 +303,8 @@ def main() -> None:
                 if args.plans:
                     print(plan, "\n")
             print(f"slowest view query: {worst:.1f} ms  (target < 1000 ms)")
+            print("query plans (the latest run of a week found by index, results read by primary key):")
+            check_plans(connection, week)
             ms, rows, _ = explain_ms(connection, WHOLE_WEEK[1], {"week": week})
             print(f"{ms:9.1f} ms  {rows:>7,} rows  {WHOLE_WEEK[0]}")
         engine = db.get_engine(bench_url)

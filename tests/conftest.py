@@ -20,6 +20,7 @@ from pathlib import Path
 import psycopg
 import pytest
 import sqlalchemy as sa
+from hypothesis import HealthCheck, settings
 from psycopg import sql
 from sqlalchemy.engine import make_url
 
@@ -33,6 +34,13 @@ from planner.database.connect import (
 from planner.database.migrate import migrate
 
 TEST_DATABASE_URL_ENV = "PLANNER_TEST_DATABASE_URL"
+
+# Property tests: a fixed, derandomised profile for CI and everyday runs, and a
+# longer random one for a nightly run (HYPOTHESIS_PROFILE=nightly pytest).
+_PROPERTY_DEFAULTS = {"deadline": None, "database": None, "suppress_health_check": [HealthCheck.too_slow]}
+settings.register_profile("ci", max_examples=60, derandomize=True, **_PROPERTY_DEFAULTS)
+settings.register_profile("nightly", max_examples=1000, **_PROPERTY_DEFAULTS)
+settings.load_profile(os.environ.get("HYPOTHESIS_PROFILE", "ci"))
 
 FileContent = str | bytes | Sequence[Mapping[str, object]] | None
 WriteFolder = Callable[..., Path]

@@ -6,7 +6,7 @@ its stderr; follow-up solves run in-process with typer's CliRunner), and the
 stored ``solve_run``/``run_flow``/``run_site_price`` rows are read back with SQL.
 
 The week with lane minimums is checked against scipy's ``linprog`` with HiGHS
-(outside reference) on an LP written here straight from the CSV rows, without
+(outside reference) on the model read straight from the CSV rows (``tests/reference_model.py``), without
 any of the planner's code: one column per lane bounded by its minimum and
 capacity, one per plant for unused supply, one per penalised customer for
 shortage, one conservation row per site. The bad weeks are small enough that
@@ -15,34 +15,24 @@ the expected diagnosis is worked out by hand beside each test.
 
 from __future__ import annotations
 
+import dataclasses
 import subprocess
-import sys
 from decimal import Decimal
 from pathlib import Path
 
 import numpy as np
 import pytest
-import scipy.sparse as sp
 import sqlalchemy as sa
-from scipy.optimize import linprog
-from typer.testing import CliRunner
 
-from planner.cli import app
+from tests.helpers import invoke, planner
+from tests.reference_model import reference_network, solve_lp, week_from_files
 
 #: HiGHS answers in floats; the data have at most two decimals.
 TOLERANCE = 1e-6
 
 
-def planner(*args: str) -> subprocess.CompletedProcess:
-    """Run the real ``planner`` command in a subprocess (database from PLANNER_DATABASE_URL)."""
-    return subprocess.run(
-        [sys.executable, "-m", "planner.cli", *args], capture_output=True, text=True, timeout=120
-    )
 
 
-def invoke(*args: str):
-    """Run the ``planner`` command in-process (for follow-up commands of a test)."""
-    return CliRunner().invoke(app, list(args))
 
 
 def load(folder: Path) -> None:
@@ -50,10 +40,6 @@ def load(folder: Path) -> None:
     assert result.exit_code == 0, result.output
 
 
-def csv_rows(text: str) -> list[dict[str, str]]:
-    header, *lines = text.strip().splitlines()
-    names = header.split(",")
-    return [dict(zip(names, line.split(","))) for line in lines]
 
 
 def runs(engine: sa.Engine) -> list[sa.RowMapping]:
@@ -109,44 +95,18 @@ MINIMUM_WEEK = {
 }
 
 
-def week_lp(files: dict[str, str], *, with_minimums: bool = True):
-    """The week as an LP straight from the CSV rows, solved by scipy's linprog (HiGHS).
+def week_reference(files: dict[str, str], *, with_minimums: bool = True):
+    """The week read straight from the CSV rows and solved by scipy's linprog (HiGHS), in currency.
 
-    Returns the linprog result, the lane keys ``(origin, destination, mode)`` in
-    column order, and the site codes in row order. A warehouse's handling cost
-    is paid on the units it ships, so it is added to the lanes leaving it.
+    Returns the optimal cost, the reference's price per site code and the lane keys in file order.
     """
-    sites = csv_rows(files["sites.csv"])
-    code = [s["site"] for s in sites]
-    row = {c: i for i, c in enumerate(code)}
-    handling = {s["site"]: float(s.get("handling_cost") or 0) for s in sites}
-    rhs = np.zeros(len(code))
-    for r in csv_rows(files["supply.csv"]):
-        rhs[row[r["site"]]] += float(r["quantity"])
-    for r in csv_rows(files["demand.csv"]):
-        rhs[row[r["site"]]] -= float(r["quantity"])
-    costs, bounds, entries, lanes = [], [], [], []
-    for r in csv_rows(files["lanes.csv"]):
-        j = len(costs)
-        costs.append(float(r["unit_cost"]) + handling[r["origin"]])
-        low = float(r["min_quantity"] or 0) if with_minimums else 0.0
-        bounds.append((low, float(r["capacity"]) if r["capacity"] else None))
-        entries += [(row[r["origin"]], j, 1.0), (row[r["destination"]], j, -1.0)]
-        lanes.append((r["origin"], r["destination"], r["mode"]))
-    for r in csv_rows(files["supply.csv"]):
-        entries.append((row[r["site"]], len(costs), 1.0))
-        costs.append(0.0)
-        bounds.append((0.0, float(r["quantity"])))
-    for r in csv_rows(files["demand.csv"]):
-        if r.get("shortage_penalty"):
-            entries.append((row[r["site"]], len(costs), -1.0))
-            costs.append(float(r["shortage_penalty"]))
-            bounds.append((0.0, None))
-    i, j, v = zip(*entries)
-    a_eq = sp.csr_matrix((v, (i, j)), shape=(len(code), len(costs)))
-    result = linprog(costs, A_eq=a_eq, b_eq=rhs, bounds=bounds, method="highs")
-    assert result.status == 0, result.message
-    return result, lanes, code
+    read = week_from_files(files, "2026-W40")
+    week = read.week if with_minimums else dataclasses.replace(read.week, lane_min=np.zeros_like(read.week.lane_min))
+    net = reference_network(week)
+    answer = solve_lp(net)
+    assert answer.status == "optimal"
+    prices = {code: answer.potential[net.site_in[0][s]] / 10_000 for s, code in enumerate(read.site_codes)}
+    return answer.cost / 10_000, prices, read.lane_keys
 
 
 def test_lane_minimums_and_modes_match_highs_with_an_exact_certificate(
@@ -161,11 +121,11 @@ def test_lane_minimums_and_modes_match_highs_with_an_exact_certificate(
     assert run["duality_gap"] == 0
     assert run["primal_cost"] == run["dual_objective"]
 
-    reference, lane_keys, site_codes = week_lp(MINIMUM_WEEK)
-    # scipy.optimize.linprog (HiGHS), outside reference: the optimal cost.
-    assert abs(float(run["primal_cost"]) - reference.fun) < TOLERANCE
+    reference_cost, highs_price, lane_keys = week_reference(MINIMUM_WEEK)
+    # scipy.optimize.linprog (HiGHS) on the model read from the CSV rows, outside reference: the optimal cost.
+    assert abs(float(run["primal_cost"]) - reference_cost) < TOLERANCE
     # The minimums matter in this week: without them HiGHS finds a cheaper plan.
-    assert week_lp(MINIMUM_WEEK, with_minimums=False)[0].fun < reference.fun - 1
+    assert week_reference(MINIMUM_WEEK, with_minimums=False)[0] < reference_cost - 1
 
     with engine.connect() as conn:
         flows = conn.execute(
@@ -213,11 +173,10 @@ def test_lane_minimums_and_modes_match_highs_with_an_exact_certificate(
             assert f["reduced_cost"] == expected
 
     # HiGHS's duals are one optimal dual; each must lie in the stored exact range.
-    highs_price = -np.asarray(reference.eqlin.marginals)
-    for s, code in enumerate(site_codes):
+    for code, dual in highs_price.items():
         low, high = prices[code].price_low, prices[code].price_high
-        assert low is None or float(low) <= highs_price[s] + TOLERANCE
-        assert high is None or highs_price[s] <= float(high) + TOLERANCE
+        assert low is None or float(low) <= dual + TOLERANCE
+        assert high is None or dual <= float(high) + TOLERANCE
 
 
 # --------------------------------------------------------------------------- bad weeks

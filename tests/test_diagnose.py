@@ -16,7 +16,7 @@ import dataclasses
 import networkx as nx
 import numpy as np
 import pytest
-from hypothesis import HealthCheck, given, settings
+from hypothesis import given
 from hypothesis import strategies as st
 
 from planner.core.diagnose import (
@@ -35,10 +35,6 @@ from planner.core.solve import INFEASIBLE, OPTIMAL, solve_flow
 from planner.core.week import NONE, SiteKind, WeekData, scale_exact
 
 PLANT, WAREHOUSE, CUSTOMER = SiteKind.PLANT, SiteKind.WAREHOUSE, SiteKind.CUSTOMER
-
-PROPERTY = settings(
-    max_examples=60, deadline=None, database=None, suppress_health_check=[HealthCheck.too_slow]
-)
 
 
 def networkx_shortfall(inst) -> int:
@@ -405,7 +401,6 @@ def small_weeks(draw, with_minimums: bool):
     )
 
 
-@PROPERTY
 @given(small_weeks(with_minimums=False))
 def test_shortfall_is_the_least_total_shortage(week):
     # Without lane minimums the shortfall is the least total unmet demand.
@@ -436,7 +431,6 @@ def test_shortfall_is_the_least_total_shortage(week):
     assert all(not inst.unlimited[a] for a in d.limiting_arcs)
 
 
-@PROPERTY
 @given(small_weeks(with_minimums=True))
 def test_shortfall_with_minimums_matches_networkx(week):
     inst = assemble_instance(week)
@@ -517,7 +511,6 @@ def test_zero_cost_cycle_and_plain_week_are_bounded():
     assert find_unbounded_cycle(assemble_instance(week)) is None
 
 
-@PROPERTY
 @given(st.data())
 def test_unbounded_cycles_match_networkx(data):
     n = data.draw(st.integers(2, 7))

@@ -13,19 +13,16 @@ and conservation at every site in every week.
 
 from __future__ import annotations
 
-import subprocess
-import sys
 from collections import defaultdict
 from decimal import Decimal
 
-import numpy as np
-import scipy.sparse as sp
 import sqlalchemy as sa
-from scipy.optimize import linprog
 from typer.testing import CliRunner
 
 from planner.cli import app
 from planner.runs.schedule import stale_periods
+from tests.helpers import csv_rows, planner
+from tests.reference_model import reference_network, solve_lp, week_from_files
 
 #: HiGHS answers in floats; the data have at most two decimals.
 TOLERANCE = 1e-6
@@ -64,11 +61,6 @@ STOCK_FILES = {
 }
 
 
-def planner(*args: str) -> subprocess.CompletedProcess:
-    """Run the real ``planner`` command in a subprocess (database from PLANNER_DATABASE_URL)."""
-    return subprocess.run(
-        [sys.executable, "-m", "planner.cli", *args], capture_output=True, text=True, timeout=120
-    )
 
 
 def load(folder) -> None:
@@ -76,52 +68,22 @@ def load(folder) -> None:
     assert result.exit_code == 0, result.output
 
 
-def csv_rows(text: str) -> list[dict[str, str]]:
-    header, *lines = text.strip().splitlines()
-    names = header.split(",")
-    return [dict(zip(names, line.split(","))) for line in lines]
 
 
-def horizon_lp(files: dict[str, str], weeks: list[str]):
-    """The linked horizon as an LP from the CSV rows, solved by scipy's linprog (HiGHS).
+def horizon_reference(files: dict[str, str], weeks: list[str]):
+    """The horizon read straight from the CSV rows and solved by scipy's linprog (HiGHS), in currency.
 
-    Returns the linprog result and the row index of each ``(week, site)``.
+    Returns the optimal cost and the reference's price per ``(week, site code)``.
     """
-    sites = csv_rows(files["sites.csv"])
-    row = {(w, s["site"]): t * len(sites) + i for t, w in enumerate(weeks) for i, s in enumerate(sites)}
-    rhs = np.zeros(len(row))
-    costs, bounds, entries = [], [], []
-
-    def column(cost, low, high, *terms):
-        entries.extend((r, len(costs), v) for r, v in terms)
-        costs.append(float(cost))
-        bounds.append((float(low), None if high in (None, "") else float(high)))
-
-    for r in csv_rows(files["supply.csv"]):
-        rhs[row[r["period"], r["site"]]] += float(r["quantity"])
-        column(0, 0, r["quantity"], (row[r["period"], r["site"]], 1.0))
-    for r in csv_rows(files["demand.csv"]):
-        rhs[row[r["period"], r["site"]]] -= float(r["quantity"])
-        if r["shortage_penalty"]:
-            column(r["shortage_penalty"], 0, None, (row[r["period"], r["site"]], -1.0))
-    for r in csv_rows(files["lanes.csv"]):
-        w = r["period"]
-        column(
-            r["unit_cost"], r["min_quantity"] or 0, r["capacity"],
-            (row[w, r["origin"]], 1.0), (row[w, r["destination"]], -1.0),
-        )
-    for t, w in enumerate(weeks[:-1]):
-        for s in sites:
-            if s["kind"] != "customer" and s["storage_capacity"]:
-                column(
-                    s["holding_cost"] or 0, 0, s["storage_capacity"],
-                    (row[w, s["site"]], 1.0), (row[weeks[t + 1], s["site"]], -1.0),
-                )
-    i, j, v = zip(*entries)
-    a_eq = sp.csr_matrix((v, (i, j)), shape=(len(row), len(costs)))
-    result = linprog(costs, A_eq=a_eq, b_eq=rhs, bounds=bounds, method="highs")
-    assert result.status == 0, result.message
-    return result, row
+    read = [week_from_files(files, w) for w in weeks]
+    net = reference_network([r.week for r in read])
+    answer = solve_lp(net)
+    assert answer.status == "optimal"
+    prices = {
+        (w, code): answer.potential[net.site_in[t][s]] / 10_000
+        for t, w in enumerate(weeks) for s, code in enumerate(read[0].site_codes)
+    }
+    return answer.cost / 10_000, prices
 
 
 def test_horizon_with_stock_is_one_run_with_flows_stock_and_prices_per_week(
@@ -169,9 +131,9 @@ def test_horizon_with_stock_is_one_run_with_flows_stock_and_prices_per_week(
     assert run["status"] == "optimal"
     assert run["certificate_ok"] is True and run["duality_gap"] == 0
 
-    reference, row = horizon_lp(STOCK_FILES, WEEKS)
-    # scipy.optimize.linprog (HiGHS), outside reference: the horizon's optimal cost.
-    assert abs(float(run["primal_cost"]) - reference.fun) < TOLERANCE
+    reference_cost, highs_price = horizon_reference(STOCK_FILES, WEEKS)
+    # scipy.optimize.linprog (HiGHS) on the model read from the CSV rows, outside reference.
+    assert abs(float(run["primal_cost"]) - reference_cost) < TOLERANCE
 
     # Flows of every lane in every week, within their minimum and capacity.
     lanes_per_week = defaultdict(int)
@@ -199,11 +161,10 @@ def test_horizon_with_stock_is_one_run_with_flows_stock_and_prices_per_week(
     assert {(p["week"], p["site"]) for p in prices} == {
         (w, s) for w in WEEKS for s in ("P1", "W1", "C1", "C2")
     }
-    highs_price = -np.asarray(reference.eqlin.marginals)
     for p in prices:
         assert p["price_low"] is None or p["price_low"] <= p["price"]
         assert p["price_high"] is None or p["price"] <= p["price_high"]
-        dual = highs_price[row[p["week"], p["site"]]]
+        dual = highs_price[p["week"], p["site"]]
         assert p["price_low"] is None or float(p["price_low"]) <= dual + TOLERANCE
         assert p["price_high"] is None or dual <= float(p["price_high"]) + TOLERANCE
 

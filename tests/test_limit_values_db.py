@@ -7,8 +7,6 @@ written from the input (``tests/reference_model.py``, outside reference).
 
 from __future__ import annotations
 
-import csv
-import io
 from decimal import Decimal as D
 
 import sqlalchemy as sa
@@ -20,6 +18,7 @@ from planner.database.ingest import load_folder
 from planner.reports.queries import binding_capacities, limit_values, week_report
 from planner.reports.rates import lane_rate_ranges
 from planner.runs.weekly import solve_period
+from tests.helpers import csv_rows
 from tests.reference_model import optimal_cost, with_lane
 
 runner = CliRunner()
@@ -126,7 +125,7 @@ def test_rate_ranges_cli(engine, write_folder):
     solved(engine, write_folder)
     result = runner.invoke(app, ["rate-ranges", "-p", "2026-W10", "--format", "csv"])
     assert result.exit_code == 0, result.output
-    rows = {r["lane"]: r for r in csv.DictReader(io.StringIO(result.stdout))}
+    rows = {r["lane"]: r for r in csv_rows(result.stdout)}
     assert set(rows) == {"P->W road", "W->C road", "P->D road", "P->D rail"}
     assert rows["W->C road"]["rate_high"] == "19.0000"
     result = runner.invoke(app, ["rate-ranges", "-p", "2026-W10", "--lane", "P->X road"])

@@ -20,23 +20,25 @@ from planner.core.network import ArcKind, assemble_instance
 from planner.core.optimize import optimize
 from planner.core.solve import OPTIMAL
 from planner.core.week import NONE, SiteKind, WeekData
-from tests.refmodels import (
-    FLOAT_TOLERANCE,
-    PROPERTY,
+from tests.helpers import (
     analyse,
-    balanced_transport,
     certified_dual_objective,
     lagrangian_bound,
-    linprog_reference,
-    replace_week,
+    reference_node,
     throughput_arc_of,
+)
+from tests.reference_model import TOLERANCE, optimal_cost, reference_network, solve_lp
+from tests.strategies import (
+    balanced_transport,
+    degenerate_week,
+    replace_week,
     transport_week,
     tree_week,
     week_data,
-    with_extra_need,
 )
 
-any_week = st.one_of(week_data(feasible=True), week_data())
+any_week = st.one_of(degenerate_week(), week_data(feasible=True), week_data())
+FLOAT_TOLERANCE = TOLERANCE
 
 
 def optimal(week: WeekData):
@@ -45,23 +47,30 @@ def optimal(week: WeekData):
     return found
 
 
-def resolved_cost(inst) -> int | None:
-    """Optimal cost by scipy linprog (HiGHS); None when infeasible."""
-    lp = linprog_reference(inst)
+def reference_potential(week: WeekData, inst) -> np.ndarray:
+    """scipy HiGHS's dual on the model from the input, read at the planner's nodes (SPARE at 0)."""
+    net = reference_network(week)
+    lp = solve_lp(net)
+    assert lp.status == OPTIMAL
+    return lp.potential[[reference_node(net, inst, v) for v in range(inst.n_nodes)]]
+
+
+def cost_with_extra_need(week: WeekData, inst, node: int, units: int) -> int | None:
+    """Optimal cost by scipy HiGHS with ``units`` more needed at the planner's ``node``; None when infeasible."""
+    net = reference_network(week)
+    lp = solve_lp(net.with_need(reference_node(net, inst, node), units))
     return lp.cost if lp.status == OPTIMAL else None
 
 
 # ---------------------------------------------------------------- HiGHS duals lie in [low, high]
 
 
-@PROPERTY
 @given(any_week)
 def test_highs_duals_lie_inside_price_ranges(week):
     found = optimal(week)
     ranges = found.ranges
-    lp = linprog_reference(found.inst)
-    assert lp.cost == found.cost  # scipy linprog (HiGHS) optimal cost
-    pi = lp.potential  # HiGHS eqlin.marginals, negated and shifted so SPARE = 0
+    assert optimal_cost(week) == found.cost  # scipy linprog (HiGHS) optimal cost
+    pi = reference_potential(week, found.inst)  # HiGHS eqlin.marginals, negated, SPARE = 0
     tol = FLOAT_TOLERANCE * (1 + np.abs(pi))
     high_ok = ~ranges.has_high | (pi <= ranges.high + tol)
     low_ok = ~ranges.has_low | (pi >= ranges.low - tol)
@@ -73,7 +82,6 @@ def test_highs_duals_lie_inside_price_ranges(week):
 # ---------------------------------------------------------------- POT potentials
 
 
-@PROPERTY
 @given(balanced_transport())
 def test_pot_potentials_lie_inside_price_ranges(instance):
     a, b, cost = instance
@@ -113,7 +121,6 @@ def test_pot_potentials_lie_inside_price_ranges(instance):
 # ---------------------------------------------------------------- weak duality
 
 
-@PROPERTY
 @given(any_week, st.data())
 def test_weak_duality_for_any_potential(week, data):
     found = optimal(week)
@@ -159,11 +166,10 @@ def test_non_degenerate_hand_example_has_one_price_per_site():
     assert found.cost == 7 * 3 + 4 * 1 + 3 * 4 + 2 * 5 + 7 * 2  # hand computed
     assert ranges.high[nodes].tolist() == list(expected.values())  # hand computed
     assert ranges.low[nodes].tolist() == list(expected.values())  # hand computed
-    assert np.allclose(linprog_reference(inst).potential[nodes], list(expected.values()))  # scipy HiGHS dual
+    assert np.allclose(reference_potential(week, inst)[nodes], list(expected.values()))  # scipy HiGHS dual
     assert not ranges.has_high[inst.short] and not ranges.has_low[inst.short]  # SHORT unused, no arcs
 
 
-@PROPERTY
 @given(tree_week())
 def test_non_degenerate_tree_has_low_equal_high(tree):
     inst = assemble_instance(tree.week)
@@ -175,14 +181,13 @@ def test_non_degenerate_tree_has_low_equal_high(tree):
     assert np.all(ranges.has_high[nodes] & ranges.has_low[nodes])
     assert np.array_equal(ranges.low[nodes], ranges.high[nodes])  # unique dual: low == high
     assert np.array_equal(ranges.high[nodes], expected)  # hand rule: parent's price + lane (+ handling)
-    lp = linprog_reference(inst)
-    assert np.allclose(lp.potential[nodes], expected, atol=1e-6)  # scipy HiGHS dual, the only one
+    potential = reference_potential(tree.week, inst)
+    assert np.allclose(potential[nodes], expected, atol=1e-6)  # scipy HiGHS dual, the only one
 
 
 # ---------------------------------------------------------------- the certificate
 
 
-@PROPERTY
 @given(any_week, st.data())
 def test_certificate_holds_and_fails_when_perturbed(week, data):
     found = optimal(week)
@@ -190,7 +195,7 @@ def test_certificate_holds_and_fails_when_perturbed(week, data):
     cert = certify(inst, flow, ranges.price)
     assert cert.ok
     assert cert.primal_cost == cert.dual_objective == found.cost  # strong duality, exact
-    assert cert.primal_cost == linprog_reference(inst).cost  # scipy linprog (HiGHS)
+    assert cert.primal_cost == optimal_cost(week)  # scipy linprog (HiGHS)
     shifted = certify(inst, flow, ranges.price + data.draw(st.integers(-50, 50)))
     assert shifted.ok  # potentials are fixed only up to a constant
     # Both extreme vectors are optimal duals where they are finite everywhere.
@@ -239,7 +244,6 @@ def test_certificate_fails_for_a_feasible_but_dearer_flow():
 # ---------------------------------------------------------------- prices as derivatives
 
 
-@PROPERTY
 @given(any_week)
 def test_price_range_is_the_derivative_of_the_optimal_cost(week):
     found = optimal(week)
@@ -247,18 +251,18 @@ def test_price_range_is_the_derivative_of_the_optimal_cost(week):
     for node in range(inst.n_nodes):
         if node == inst.spare:
             continue
-        more = resolved_cost(with_extra_need(inst, node, 1))
+        more = cost_with_extra_need(week, inst, node, 1)
         if ranges.has_high[node]:
             # Right derivative (Ahuja, Magnanti & Orlin 1993, from memory); re-solved by scipy HiGHS.
             assert more is not None and more - found.cost == ranges.high[node]
             assert ranges.high_units[node] >= 1  # a reachable node has a path with room for a unit
             k = int(min(ranges.high_units[node], 4))
             if k > 1:
-                many = resolved_cost(with_extra_need(inst, node, k))
+                many = cost_with_extra_need(week, inst, node, k)
                 assert many - found.cost == k * ranges.high[node]  # linear for high_units units (HiGHS)
         else:
             assert more is None  # scipy HiGHS: one more unit cannot be had at any cost
-        less = resolved_cost(with_extra_need(inst, node, -1))
+        less = cost_with_extra_need(week, inst, node, -1)
         if ranges.has_low[node]:
             assert less is not None and found.cost - less == ranges.low[node]  # left derivative (HiGHS)
         else:
@@ -276,11 +280,10 @@ def test_high_units_with_many_tied_modes_on_one_pair():
     found = analyse(inst)
     customer = inst.site_node[0, 1]
     assert found.ranges.high[customer] == 3 and found.ranges.high_units[customer] == 7  # hand computed
-    assert resolved_cost(with_extra_need(inst, customer, 7)) == found.cost + 7 * 3  # scipy HiGHS re-solve
-    assert resolved_cost(with_extra_need(inst, customer, 8)) is None  # scipy HiGHS: infeasible
+    assert cost_with_extra_need(week, inst, customer, 7) == found.cost + 7 * 3  # scipy HiGHS re-solve
+    assert cost_with_extra_need(week, inst, customer, 8) is None  # scipy HiGHS: infeasible
 
 
-@PROPERTY
 @given(any_week)
 def test_customer_price_is_the_cost_of_one_more_unit_of_demand(week):
     found = optimal(week)
@@ -289,7 +292,7 @@ def test_customer_price_is_the_cost_of_one_more_unit_of_demand(week):
         node = inst.site_node[0, site]
         demand = week.demand.copy()
         demand[site] += 1
-        more = resolved_cost(assemble_instance(replace_week(week, demand=demand)))
+        more = optimal_cost(replace_week(week, demand=demand))
         if ranges.has_high[node]:
             assert more is not None and more - found.cost == ranges.high[node]  # HiGHS re-solve
         else:
@@ -297,14 +300,13 @@ def test_customer_price_is_the_cost_of_one_more_unit_of_demand(week):
         if week.demand[site] == 0:
             continue
         demand[site] -= 2
-        less = resolved_cost(assemble_instance(replace_week(week, demand=demand)))
+        less = optimal_cost(replace_week(week, demand=demand))
         if ranges.has_low[node]:
             assert less is not None and found.cost - less == ranges.low[node]  # HiGHS re-solve
         else:
             assert less is None  # HiGHS re-solve: infeasible
 
 
-@PROPERTY
 @given(any_week)
 def test_plant_price_is_the_value_of_supply(week):
     found = optimal(week)
@@ -316,13 +318,13 @@ def test_plant_price_is_the_value_of_supply(week):
         node = inst.site_node[0, site]
         supply = week.supply.copy()
         supply[site] += 1
-        more = resolved_cost(assemble_instance(replace_week(week, supply=supply)))
+        more = optimal_cost(replace_week(week, supply=supply))
         ships = unused[site] < week.supply[site]
         # One more unit of supply also widens the plant -> SPARE arc, so a
         # plant that ships nothing gains nothing (common practice, no source).
         assert found.cost - more == (ranges.low[node] if ships else 0)  # scipy HiGHS re-solve
         supply[site] -= 2
-        less = resolved_cost(assemble_instance(replace_week(week, supply=supply)))
+        less = optimal_cost(replace_week(week, supply=supply))
         if ranges.has_high[node]:
             assert less is not None and less - found.cost == ranges.high[node]  # scipy HiGHS re-solve
         else:
@@ -346,7 +348,7 @@ def test_capacity_value_of_a_full_lane_hand_example():
     values = found.capacity_value
     assert found.certificate.primal_cost == 31  # hand computed
     assert values[inst.lane_arc[0]].tolist() == [5, 0]  # hand computed
-    wider = resolved_cost(assemble_instance(replace_week(week, lane_capacity=[6, NONE])))
+    wider = optimal_cost(replace_week(week, lane_capacity=[6, NONE]))
     assert wider == 26  # hand computed; re-solved with scipy HiGHS
 
 
@@ -363,7 +365,7 @@ def test_capacity_value_of_a_full_warehouse_hand_example():
     values = found.capacity_value
     assert found.certificate.primal_cost == 30  # hand computed
     assert values[throughput_arc_of(inst, 1)] == 6  # hand computed
-    wider = resolved_cost(assemble_instance(replace_week(week, throughput_capacity=[NONE, 5, NONE])))
+    wider = optimal_cost(replace_week(week, throughput_capacity=[NONE, 5, NONE]))
     assert wider == 24  # hand computed: 5 * 3 + 1 * 9; re-solved with scipy HiGHS
 
 

@@ -3,8 +3,6 @@ hand network of tests/test_views.py (every expected figure is computed by hand t
 
 from __future__ import annotations
 
-import csv
-import io
 import json
 from decimal import Decimal as D
 from pathlib import Path
@@ -26,6 +24,7 @@ from planner.reports.queries import (
     week_report,
 )
 from planner.runs.weekly import solve_period
+from tests.helpers import csv_rows
 from tests.test_views import SITES, hand_network, solve_hand_network
 
 runner = CliRunner()
@@ -40,8 +39,6 @@ def run_cli(*args: str):
     return runner.invoke(app, list(args))
 
 
-def csv_rows(text: str) -> list[dict[str, str]]:
-    return list(csv.DictReader(io.StringIO(text)))
 
 
 def test_prices_csv_hand_computed(solved: dict[str, int]) -> None:

@@ -13,18 +13,15 @@ from __future__ import annotations
 
 import re
 import subprocess
-import sys
+import time
 from collections import Counter
 
 import sqlalchemy as sa
-from typer.testing import CliRunner
 
-from planner.cli import app
 from planner.runs.schedule import LOCK_NAMESPACE
 from planner.synthetic.benchmark_network import benchmark_network
 from planner.synthetic.frames import write_folder as write_network
-
-PLANNER = [sys.executable, "-m", "planner.cli"]
+from tests.helpers import PLANNER, invoke, planner
 
 #: A resolve log line: the week code, then what happened to it.
 LOG_LINE = re.compile(r"^(\d{4}-W\d{2}) (optimal|infeasible|unbounded|failed|skipped:)")
@@ -37,14 +34,8 @@ INFEASIBLE_WEEK = {
 }
 
 
-def planner(*args: str) -> subprocess.CompletedProcess:
-    """Run the real ``planner`` command in a subprocess (database from PLANNER_DATABASE_URL)."""
-    return subprocess.run([*PLANNER, *args], capture_output=True, text=True, timeout=120)
 
 
-def invoke(*args: str):
-    """Run the ``planner`` command in-process (for commands that start no workers)."""
-    return CliRunner().invoke(app, list(args))
 
 
 def load(folder) -> None:
@@ -212,11 +203,11 @@ def test_resolve_skips_a_week_whose_lock_another_session_holds(
 
 def test_two_resolves_started_together_solve_each_week_once(engine: sa.Engine, tmp_path) -> None:
     frames = benchmark_network(
-        n_plants=10, n_warehouses=40, n_customers=2000, n_lanes=10_000, weeks=6, seed=5
+        n_plants=10, n_warehouses=40, n_customers=4000, n_lanes=30_000, weeks=8, seed=5
     )
-    load(write_network(frames, tmp_path / "six-weeks"))
+    load(write_network(frames, tmp_path / "eight-weeks"))
     weeks = sorted(set(frames.supply["period"]))
-    assert len(weeks) == 6
+    assert len(weeks) == 8
 
     processes = [
         subprocess.Popen(
@@ -234,15 +225,39 @@ def test_two_resolves_started_together_solve_each_week_once(engine: sa.Engine, t
     solved_by = [solved(log_lines(stdout)) for stdout, _ in outputs]
     assert solved_by[0].isdisjoint(solved_by[1])
     assert solved_by[0] | solved_by[1] == set(weeks)
+    # They really ran at the same time: each solved some weeks and skipped
+    # weeks the other was solving or had just solved.
+    assert solved_by[0] and solved_by[1], solved_by
 
     runs = week_runs(engine)
     assert Counter(r.period for r in runs) == Counter({w: 1 for w in weeks})
     assert all(r.status == "optimal" and r.certificate_ok for r in runs)
 
 
+def advisory_waiters(engine: sa.Engine, period_id: int) -> int:
+    """Sessions waiting (not granted) for the planner's advisory lock of a week."""
+    with engine.connect() as conn:
+        return conn.execute(
+            sa.text(
+                "SELECT count(*) FROM pg_locks WHERE locktype = 'advisory' AND NOT granted "
+                "AND classid = :ns AND objid = :id"
+            ),
+            {"ns": LOCK_NAMESPACE, "id": period_id},
+        ).scalar_one()
+
+
+def wait_until(condition, timeout: float = 60.0) -> bool:
+    """Poll ``condition`` until it holds or ``timeout`` seconds pass."""
+    deadline = time.monotonic() + timeout
+    while time.monotonic() < deadline:
+        if condition():
+            return True
+        time.sleep(0.05)
+    return False
+
+
 def test_solve_all_waits_for_a_week_that_resolve_holds(engine: sa.Engine, write_folder, network_files) -> None:
     import threading
-    import time
 
     from planner.runs.schedule import solve_many
 
@@ -258,8 +273,9 @@ def test_solve_all_waits_for_a_week_that_resolve_holds(engine: sa.Engine, write_
             target=lambda: result.update(out=solve_many(url, ["2026-W40"], workers=1))
         )
         worker.start()
-        time.sleep(1.5)
-        # While another session holds the week, the explicit solve waits.
+        # The explicit solve waits for the week's lock: the server shows its
+        # session waiting on that advisory lock (polled, never a fixed sleep).
+        assert wait_until(lambda: advisory_waiters(engine, period_id) == 1), "the solve never waited for the lock"
         assert worker.is_alive()
         assert week_runs(engine) == []
         holder.execute(sa.text("SELECT pg_advisory_unlock(:ns, :id)"), key)

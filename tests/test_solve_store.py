@@ -1,12 +1,9 @@
 """Load, solve and store end to end on a real PostgreSQL: costs, certificates and stored prices.
 
 The optimal cost of every stored run is checked against two outside references
-built straight from the CSV rows (not from the planner's instance):
-
-* scipy's ``linprog`` with HiGHS on the natural LP of the week (plants ship at
-  most their supply, warehouses pass on what they receive up to their
-  throughput, customers receive their demand or pay the shortage penalty);
-* networkx's ``min_cost_flow_cost`` on a flow network of the same week.
+on the model read straight from the CSV rows (``tests/reference_model.py``, not
+the planner's instance): scipy's ``linprog`` with HiGHS and networkx's
+``network_simplex``.
 
 The stored prices are checked against the optimality conditions of min-cost
 flow (complementary slackness: R. K. Ahuja, T. L. Magnanti and J. B. Orlin,
@@ -16,21 +13,17 @@ derivative definition of ``price_high`` by re-solving with more demand.
 
 from __future__ import annotations
 
-import csv
 import dataclasses
-import io
-from dataclasses import dataclass
 from decimal import Decimal
 
-import networkx as nx
 import numpy as np
 import pytest
-from scipy.optimize import linprog
 from sqlalchemy import text
 
 from planner.database.ingest import load_folder
 from planner.database.snapshot import Scaling, read_lanes, read_snapshot
 from planner.runs.weekly import solve_period, solve_snapshot
+from tests.reference_model import reference_network, solve_lp, solve_networkx, week_from_files
 
 #: Default precision of a run (``--cost-decimals 4``, ``--quantity-decimals 0``).
 COST_DECIMALS = 4
@@ -93,146 +86,12 @@ TIGHT_FILES = {
 # --------------------------------------------------------------------------- outside references
 
 
-def _blank_none(value: str | None) -> Decimal | None:
-    return None if value is None or value.strip() == "" else Decimal(value)
-
-
-@dataclass(frozen=True)
-class LaneRow:
-    origin: str
-    destination: str
-    cost: Decimal
-    capacity: Decimal | None
-    minimum: Decimal
-
-
-@dataclass(frozen=True)
-class WeekRows:
-    """One week of a load folder, read straight from its CSV text."""
-
-    kind: dict[str, str]
-    throughput: dict[str, Decimal | None]
-    handling: dict[str, Decimal]
-    supply: dict[str, Decimal]
-    demand: dict[str, Decimal]
-    penalty: dict[str, Decimal | None]
-    lanes: list[LaneRow]
-
-
-def week_rows(files: dict[str, str], period: str) -> WeekRows:
-    def rows(name: str) -> list[dict[str, str]]:
-        return list(csv.DictReader(io.StringIO(files[name])))
-
-    def this_week(name: str) -> list[dict[str, str]]:
-        return [r for r in rows(name) if r["period"] == period]
-
-    sites = rows("sites.csv")
-    kind = {r["site"]: r["kind"] for r in sites}
-    demand = this_week("demand.csv")
-    return WeekRows(
-        kind=kind,
-        throughput={r["site"]: _blank_none(r.get("throughput_capacity")) for r in sites},
-        handling={r["site"]: _blank_none(r.get("handling_cost")) or Decimal(0) for r in sites},
-        supply={r["site"]: Decimal(r["quantity"]) for r in this_week("supply.csv")},
-        demand={r["site"]: Decimal(r["quantity"]) for r in demand},
-        penalty={r["site"]: _blank_none(r.get("shortage_penalty")) for r in demand},
-        lanes=[
-            LaneRow(
-                r["origin"],
-                r["destination"],
-                Decimal(r["unit_cost"]),
-                _blank_none(r.get("capacity")),
-                _blank_none(r.get("min_quantity")) or Decimal(0),
-            )
-            for r in this_week("lanes.csv")
-        ],
-    )
-
-
-def highs_cost(week: WeekRows) -> float:
-    """Optimal cost by scipy ``linprog(method="highs")`` on the natural LP of the week.
-
-    Columns: one per lane (bounds min_quantity..capacity) and one shortage per
-    customer with a penalty. Rows: plant shipments <= supply; warehouse
-    inflow = outflow and inflow <= throughput; customer inflow + shortage = demand.
-    Handling is paid on every unit entering a warehouse.
-    """
-    short = [c for c, p in week.penalty.items() if p is not None]
-    n_lanes = len(week.lanes)
-    n = n_lanes + len(short)
-    cost = [float(l.cost + week.handling.get(l.destination, 0)) for l in week.lanes]
-    cost += [float(week.penalty[c]) for c in short]
-    bounds = [(float(l.minimum), None if l.capacity is None else float(l.capacity)) for l in week.lanes]
-    bounds += [(0.0, None)] * len(short)
-    a_ub, b_ub, a_eq, b_eq = [], [], [], []
-    for site, kind in week.kind.items():
-        into = np.array([l.destination == site for l in week.lanes] + [c == site for c in short], float)
-        out = np.array([l.origin == site for l in week.lanes] + [False] * len(short), float)
-        if kind == "plant":
-            a_ub.append(out)
-            b_ub.append(float(week.supply.get(site, 0)))
-        elif kind == "warehouse":
-            a_eq.append(into - out)
-            b_eq.append(0.0)
-            if week.throughput[site] is not None:
-                a_ub.append(into)
-                b_ub.append(float(week.throughput[site]))
-        else:
-            a_eq.append(into)
-            b_eq.append(float(week.demand.get(site, 0)))
-    res = linprog(
-        np.array(cost), A_ub=np.array(a_ub).reshape(-1, n), b_ub=b_ub,
-        A_eq=np.array(a_eq).reshape(-1, n), b_eq=b_eq, bounds=bounds, method="highs",
-    )
-    assert res.status == 0, res.message
-    return float(res.fun)
-
-
-def networkx_cost(week: WeekRows) -> Decimal:
-    """Optimal cost by networkx ``min_cost_flow_cost`` (integer weights at 4 decimals).
-
-    Unused supply goes to a node ``spare``; customers with a penalty may be fed
-    from ``short`` (supplied by ``spare``) at the penalty. Every warehouse is an
-    in -> out pair. networkx has no lower bounds, so minimum quantities are
-    shifted out and their cost added back.
-    """
-    scale = 10**COST_DECIMALS
-    graph = nx.MultiDiGraph()
-    need: dict[object, int] = {"spare": 0, "short": 0}
-    for site, kind in week.kind.items():
-        if kind == "plant":
-            supply = int(week.supply.get(site, 0))
-            need[site] = -supply
-            need["spare"] += supply
-            graph.add_edge(site, "spare", weight=0, capacity=supply)
-        elif kind == "warehouse":
-            need[(site, "in")] = need[(site, "out")] = 0
-            attrs = {"weight": int(week.handling[site] * scale)}
-            if week.throughput[site] is not None:
-                attrs["capacity"] = int(week.throughput[site])
-            graph.add_edge((site, "in"), (site, "out"), **attrs)
-        else:
-            demand = int(week.demand.get(site, 0))
-            need[site] = demand
-            need["spare"] -= demand
-            if week.penalty.get(site) is not None:
-                graph.add_edge("short", site, weight=int(week.penalty[site] * scale))
-    graph.add_edge("spare", "short", weight=0)
-    constant = 0
-    for lane in week.lanes:
-        tail = (lane.origin, "out") if week.kind[lane.origin] == "warehouse" else lane.origin
-        head = (lane.destination, "in") if week.kind[lane.destination] == "warehouse" else lane.destination
-        low = int(lane.minimum)
-        attrs = {"weight": int(lane.cost * scale)}
-        if lane.capacity is not None:
-            attrs["capacity"] = int(lane.capacity) - low
-        graph.add_edge(tail, head, **attrs)
-        need[tail] += low
-        need[head] -= low
-        constant += int(lane.cost * scale) * low
-    for node, value in need.items():
-        graph.add_node(node, demand=value)
-    return Decimal(nx.min_cost_flow_cost(graph) + constant).scaleb(-COST_DECIMALS)
+def reference_costs(files: dict[str, str], period: str) -> tuple[Decimal, Decimal]:
+    """Optimal cost of a week read straight from its CSV rows, by scipy HiGHS and by networkx (currency)."""
+    net = reference_network(week_from_files(files, period, COST_DECIMALS).week)
+    highs, simplex = solve_lp(net), solve_networkx(net)
+    assert highs.status == simplex.status == "optimal"
+    return Decimal(highs.cost).scaleb(-COST_DECIMALS), Decimal(simplex.cost).scaleb(-COST_DECIMALS)
 
 
 # --------------------------------------------------------------------------- stored rows
@@ -351,11 +210,11 @@ def test_stored_cost_matches_highs_and_networkx_and_certificate_is_exact(
     summary = solve_period(engine, period)
     assert summary.status == "optimal", summary.message
     run = run_row(engine, summary.run_id)
-    week = week_rows(files, period)
+    highs, simplex = reference_costs(files, period)
 
     # Outside references: scipy linprog (HiGHS) and networkx min_cost_flow_cost.
-    assert float(run["primal_cost"]) == pytest.approx(highs_cost(week), abs=1e-6)
-    assert run["primal_cost"] == networkx_cost(week)
+    assert run["primal_cost"] == highs  # scipy linprog (HiGHS) on the model read from the CSV rows
+    assert run["primal_cost"] == simplex  # networkx network_simplex on the same model
     assert summary.cost == run["primal_cost"]
 
     # The certificate: exact NUMERIC equalities, compared inside PostgreSQL.
