@@ -167,19 +167,27 @@ def report(
         _write_png(chart, png, f"network picture of {period}")
 
 
-def _chosen(result, section: Section | None) -> "dict[str, pd.DataFrame]":
-    sections = result.sections()
-    return sections if section is None else {section.value: sections[section.value]}
+def _sections(section: Section | None):
+    from planner.reports.sections import SECTIONS
+
+    return [s for s in SECTIONS if section is None or s.name == section.value]
+
+
+def _section_frame(result, spec) -> "pd.DataFrame":
+    frame = result.sections()[spec.name]
+    return frame[[c for c in spec.columns if c in frame.columns]] if not frame.empty else frame
 
 
 def _report_csv(result, section: Section | None) -> str:
     """One CSV: the chosen section's columns, or every section with a ``section`` column."""
     import pandas as pd
 
-    chosen = _chosen(result, section)
     if section is not None:
-        return chosen[section.value].to_csv(index=False)
-    frames = [frame.assign(section=name) for name, frame in chosen.items() if not frame.empty]
+        (spec,) = _sections(section)
+        frame = _section_frame(result, spec)
+        return (frame if not frame.empty else pd.DataFrame(columns=spec.columns)).to_csv(index=False)
+    frames = [_section_frame(result, spec).assign(section=spec.name) for spec in _sections(None)]
+    frames = [f for f in frames if not f.empty]
     if not frames:
         return "section\n"
     stacked = pd.concat(frames, ignore_index=True)
@@ -188,15 +196,17 @@ def _report_csv(result, section: Section | None) -> str:
 
 def _report_json(result, section: Section | None) -> dict | list:
     if section is not None:
-        return records(result.sections()[section.value])
+        (spec,) = _sections(section)
+        return records(_section_frame(result, spec))
     run = None if result.run is None else {k: json_value(v) for k, v in result.run.items()}
     body = {"period": result.period, "previous_period": result.previous_period, "run": run}
-    body.update({name: records(frame) for name, frame in result.sections().items()})
+    body.update({spec.name: records(_section_frame(result, spec)) for spec in _sections(None)})
     body["notes"] = list(result.notes) + ([result.message] if result.message else [])
     return body
 
 
 def _print_report(console, result, section: Section | None) -> None:
+    from planner.reports.sections import cell_text
     from planner.runs.weekly import certificate_word
 
     run = result.run
@@ -209,59 +219,22 @@ def _print_report(console, result, section: Section | None) -> None:
             highlight=False, soft_wrap=True,
         )
         for note in result.notes:
-            console.print(f"note: {note}", highlight=False, soft_wrap=True)
-    wanted = {section.value} if section is not None else set(result.sections())
-    if "cost" in wanted:
-        table = Table("echelon", "mode", "units", "cost", title="Cost by echelon and mode")
-        for row in result.cost.itertuples(index=False):
-            table.add_row(row.echelon or "", row.mode or "-", units(row.units), number(row.cost))
-        table.add_row("total", "", "", number(result.cost_total), style="bold")
+            console.print(f"note: {note}", highlight=False, soft_wrap=True, markup=False)
+    period, previous = result.period, result.previous_period
+    for spec in _sections(section):
+        frame = result.sections()[spec.name]
+        if frame.empty:
+            console.print(spec.empty.format(period=period, previous=previous), highlight=False, markup=False)
+            continue
+        table = Table(
+            *(spec.heading(f, period, previous) for f in spec.fields),
+            title=spec.titled(period, previous), caption=spec.note or None,
+        )
+        for record in frame.to_dict(orient="records"):
+            table.add_row(*(cell_text(f, record.get(f.column)) for f in spec.fields))
+        if spec.name == "cost":
+            table.add_row("total", "", "", number(result.cost_total), style="bold")
         console.print(table)
-    if "binding" in wanted:
-        if result.binding.empty:
-            console.print("no lane or warehouse at capacity")
-        else:
-            table = Table(
-                "rank", "kind", "capacity of", "value of one more unit", "cost of one unit less",
-                "capacity", "flow", title="Top binding capacities",
-                caption="exact one-sided values; they differ where the plan is degenerate at that capacity",
-            )
-            for row in result.binding.itertuples(index=False):
-                table.add_row(
-                    str(row.rank), row.kind, row.label, number(row.capacity_value),
-                    number(row.value_less) if row.less_blocked is None else "no plan",
-                    units(row.capacity), units(row.flow),
-                )
-            console.print(table)
-    if "moves" in wanted:
-        if result.moves.empty:
-            console.print(f"no price moved versus {result.previous_period}")
-        else:
-            table = Table(
-                "site", "kind", "region", result.previous_period, result.period, "change", "range now",
-                title=f"Biggest price moves versus {result.previous_period}",
-            )
-            for row in result.moves.itertuples(index=False):
-                table.add_row(
-                    row.site, row.kind or "", row.region or "", number(row.previous_price),
-                    number(row.price), number(row.change),
-                    f"[{number(row.price_low)}, {number(row.price_high)}]",
-                )
-            console.print(table)
-    if "shortages" in wanted:
-        if result.shortages.empty:
-            console.print("no shortage: every customer's demand is met")
-        else:
-            table = Table(
-                "customer", "region", "demand", "units short", "penalty per unit", "penalty cost",
-                title="Shortages",
-            )
-            for row in result.shortages.itertuples(index=False):
-                table.add_row(
-                    row.customer, row.region or "", units(row.demand), units(row.units_short),
-                    number(row.penalty), number(row.penalty_cost),
-                )
-            console.print(table)
 
 
 @app.command()

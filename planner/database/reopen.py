@@ -41,12 +41,16 @@ def reopen_week(conn: Connection, period: str, run_id: int | None = None) -> Sto
     PlannerError
         When there is no such optimal week run.
     """
+    chosen = (
+        "SELECT run_id FROM latest_week_run WHERE period = :period"
+        if run_id is None
+        else "SELECT r.id FROM solve_run r JOIN period p ON p.id = r.period_id WHERE r.id = :run "
+        "AND p.code = :period AND r.kind = 'week' AND r.status = 'optimal'"
+    )
     row = conn.execute(
         text(
             "SELECT r.id, r.batch_id, r.cost_decimals, r.quantity_decimals FROM solve_run r "
-            "JOIN period p ON p.id = r.period_id WHERE p.code = :period AND r.kind = 'week' "
-            "AND r.status = 'optimal' AND (CAST(:run AS bigint) IS NULL OR r.id = :run) "
-            "ORDER BY r.finished_at DESC, r.id DESC LIMIT 1"
+            f"WHERE r.id = ({chosen})"
         ),
         {"period": period, "run": run_id},
     ).first()

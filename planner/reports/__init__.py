@@ -6,6 +6,7 @@
 :mod:`.rates`           rate ranges of a stored run's lanes, with their routes
 :mod:`.charts`          PNG charts (matplotlib Agg)
 :mod:`.html`            the self-contained weekly HTML report
+:mod:`.sections`        the weekly report's sections and columns, for every output
 :mod:`.formats`         JSON-ready values for scripts
 =====================  ==========================================================
 

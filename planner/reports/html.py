@@ -12,6 +12,7 @@ of the sites that moved most, the top binding capacities and the shortages.
 from __future__ import annotations
 
 import base64
+import dataclasses
 import datetime
 from html import escape
 from pathlib import Path
@@ -28,6 +29,7 @@ from planner.reports.queries import (
     site_prices,
     week_report,
 )
+from planner.reports.sections import SECTIONS, Section, cell_text
 
 __all__ = ["render_week_report", "write_week_report"]
 
@@ -69,6 +71,33 @@ def _table(frame: pd.DataFrame, columns: dict[str, str], numeric: dict[str, int]
         )
         rows.append(f"<tr>{cells}</tr>")
     return f'<table style="{_TABLE}">{"".join(rows)}</table>'
+
+
+def _spec_table(spec: Section, frame: pd.DataFrame, period: str, previous: str) -> str:
+    """HTML table of a report section as :mod:`planner.reports.sections` defines it; every cell escaped."""
+    head = "".join(f'<th style="{_TH}">{escape(spec.heading(f, period, previous))}</th>' for f in spec.fields)
+    rows = [f"<tr>{head}</tr>"]
+    for record in frame.to_dict(orient="records"):
+        cells = "".join(
+            f'<td style="{_TD_NUMBER if f.numeric else _TD}">{escape(cell_text(f, record.get(f.column)))}</td>'
+            for f in spec.fields
+        )
+        rows.append(f"<tr>{cells}</tr>")
+    return f'<table style="{_TABLE}">{"".join(rows)}</table>'
+
+
+def _report_section(report: WeekReport, name: str, extra: str = "") -> str:
+    """A report section by its spec: title, note, table (or what its emptiness means), then ``extra``."""
+    spec = next(s for s in SECTIONS if s.name == name)
+    period, previous = report.period, report.previous_period
+    frame = report.sections()[name]
+    note = f'<p style="{_NOTE}">{escape(spec.note)}</p>' if spec.note and not frame.empty else ""
+    if frame.empty:
+        said = spec.empty.format(period=period, previous=previous)
+        body = f'<p style="{_NOTE}">{escape(said[0].upper() + said[1:])}.</p>'
+    else:
+        body = _spec_table(spec, frame, period, previous)
+    return _section(spec.titled(period, previous), note + body + extra)
 
 
 def _image(png: bytes, alt: str) -> str:
@@ -153,11 +182,8 @@ def _run_id(report: WeekReport) -> int | None:
 
 def _cost_section(report: WeekReport) -> str:
     total = pd.DataFrame([{"echelon": "total", "mode": "", "units": None, "cost": report.cost_total}], dtype=object)
-    cost = pd.concat([report.cost, total], ignore_index=True)
-    return _section(
-        "Cost by echelon and mode",
-        _table(cost, {"echelon": "echelon", "mode": "mode", "units": "units", "cost": "cost"}, {"units": 0, "cost": 2}),
-    )
+    with_total = dataclasses.replace(report, cost=pd.concat([report.cost, total], ignore_index=True))
+    return _report_section(with_total, "cost")
 
 
 def _network_section(engine: Engine, report: WeekReport) -> str:
@@ -173,61 +199,19 @@ def _network_section(engine: Engine, report: WeekReport) -> str:
 
 
 def _moves_section(engine: Engine, report: WeekReport) -> str:
-    period, previous = report.period, report.previous_period
-    if report.moves.empty:
-        moves = f'<p style="{_NOTE}">No price moved versus {escape(previous)}.</p>'
-    else:
-        moves = _table(
-            report.moves,
-            {
-                "site": "site", "kind": "kind", "region": "region", "previous_price": previous,
-                "price": period, "change": "change", "price_low": "low", "price_high": "high",
-                "degenerate": "not unique",
-            },
-            {"previous_price": 2, "price": 2, "change": 2, "price_low": 2, "price_high": 2},
-        )
-        for site in report.moves["site"].head(PRICE_CHARTS):
-            history = site_prices(engine, site, last=period)
-            moves += _image(price_chart(history), f"price of {site} per week with its range")
-    return _section(f"Biggest price moves versus {previous}", moves)
+    charts = ""
+    for site in report.moves["site"].head(PRICE_CHARTS) if not report.moves.empty else []:
+        history = site_prices(engine, site, last=report.period)
+        charts += _image(price_chart(history), f"price of {site} per week with its range")
+    return _report_section(report, "moves", charts)
 
 
 def _binding_section(report: WeekReport) -> str:
-    if report.binding.empty:
-        return _section("Top binding capacities", f'<p style="{_NOTE}">No lane or warehouse is at capacity.</p>')
-    explained = (
-        f'<p style="{_NOTE}">Exact one-sided values: what one more unit of capacity saves, and what one unit '
-        "less costs. They differ where the plan is degenerate at that capacity; a capacity that is full but "
-        "worth nothing more is not ranked.</p>"
-    )
-    return _section(
-        "Top binding capacities",
-        explained + _table(
-            report.binding,
-            {
-                "rank": "rank", "kind": "kind", "label": "capacity of",
-                "capacity_value": "value of one more unit", "value_less": "cost of one unit less",
-                "capacity": "capacity", "flow": "flow",
-            },
-            {"rank": 0, "capacity_value": 2, "value_less": 2, "capacity": 0, "flow": 0},
-        ),
-    )
+    return _report_section(report, "binding")
 
 
 def _shortages_section(report: WeekReport) -> str:
-    if report.shortages.empty:
-        return _section("Shortages", f'<p style="{_NOTE}">No shortage: every customer\'s demand is met.</p>')
-    return _section(
-        "Shortages",
-        _table(
-            report.shortages,
-            {
-                "customer": "customer", "name": "name", "region": "region", "demand": "demand",
-                "units_short": "units short", "penalty": "penalty per unit", "penalty_cost": "penalty cost",
-            },
-            {"demand": 0, "units_short": 0, "penalty": 2, "penalty_cost": 2},
-        ),
-    )
+    return _report_section(report, "shortages")
 
 
 def write_week_report(

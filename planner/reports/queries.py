@@ -569,12 +569,7 @@ class WeekReport:
 
 def _newest_attempt(conn: Connection, period: str) -> dict | None:
     row = conn.execute(
-        text(
-            "SELECT sr.id, sr.status FROM solve_run sr JOIN period p ON p.id = sr.period_id "
-            "WHERE p.code = :period AND sr.kind = 'week' "
-            "ORDER BY sr.finished_at DESC NULLS LAST, sr.id DESC LIMIT 1"
-        ),
-        {"period": period},
+        text("SELECT run_id AS id, status FROM newest_week_run WHERE period = :period"), {"period": period}
     ).mappings().first()
     return None if row is None else dict(row)
 

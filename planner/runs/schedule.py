@@ -156,23 +156,27 @@ def is_stale(conn: Connection, period: str, scaling: Scaling) -> tuple[bool, str
     """
     _, _, snapshot_fp = current_batch(conn, period)
     fingerprint = run_fingerprint(snapshot_fp, scaling)
-    row = conn.execute(
+    latest = conn.execute(
+        text("SELECT run_id, finished_at, input_fingerprint FROM latest_week_run WHERE period = :period"),
+        {"period": period},
+    ).first()
+    failed = conn.execute(
         text(
-            "SELECT r.id, r.status, r.input_fingerprint FROM solve_run r JOIN period p "
-            "ON p.id = r.period_id WHERE p.code = :period AND r.kind = 'week' "
-            "AND (r.status = 'optimal' OR (r.input_fingerprint = :fp "
-            "AND r.status IN ('infeasible', 'unbounded'))) "
+            "SELECT r.id, r.status FROM solve_run r JOIN period p ON p.id = r.period_id "
+            "WHERE p.code = :period AND r.kind = 'week' AND r.input_fingerprint = :fp "
+            "AND r.status IN ('infeasible', 'unbounded') "
+            "AND (CAST(:since AS timestamptz) IS NULL OR r.finished_at > :since) "
             "ORDER BY r.finished_at DESC, r.id DESC LIMIT 1"
         ),
-        {"period": period, "fp": fingerprint},
+        {"period": period, "fp": fingerprint, "since": None if latest is None else latest.finished_at},
     ).first()
-    if row is None:
+    if failed is not None:
+        return False, f"input unchanged since run {failed.id}, which was {failed.status}"
+    if latest is None:
         return True, "never solved"
-    if row.input_fingerprint != fingerprint:
-        return True, f"input changed since run {row.id}"
-    if row.status != "optimal":
-        return False, f"input unchanged since run {row.id}, which was {row.status}"
-    return False, f"up to date (run {row.id})"
+    if latest.input_fingerprint != fingerprint:
+        return True, f"input changed since run {latest.run_id}"
+    return False, f"up to date (run {latest.run_id})"
 
 
 def stale_periods(engine: Engine, scaling: Scaling = Scaling()) -> list[tuple[str, str]]:

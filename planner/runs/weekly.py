@@ -239,8 +239,8 @@ def period_overview(engine: Engine) -> list[dict]:
                 "r.certificate_ok FROM period p "
                 "JOIN LATERAL (SELECT max(batch_id) AS batch_id FROM period_snapshot ps "
                 "WHERE ps.period_id = p.id) cur ON cur.batch_id IS NOT NULL "
-                "LEFT JOIN LATERAL (SELECT * FROM solve_run sr WHERE sr.period_id = p.id "
-                "AND sr.kind = 'week' ORDER BY sr.finished_at DESC, sr.id DESC LIMIT 1) r ON true "
+                "LEFT JOIN newest_week_run nw ON nw.period_id = p.id "
+                "LEFT JOIN solve_run r ON r.id = nw.run_id "
                 "ORDER BY p.starts_on"
             )
         ).mappings()
