@@ -8,6 +8,7 @@
 :mod:`.snapshot`        a period's snapshot -> ``WeekData``, scaled exactly in PostgreSQL
 :mod:`.results`         a run's row, flows, prices, stock and limit values, stored in one transaction
 :mod:`.reopen`          a stored week run read back as arrays (snapshot, instance, flow)
+:mod:`.history`         result partitions per week, retention of old runs, pinned runs
 :mod:`.pgbinary`        PostgreSQL binary COPY rows built by numpy
 =====================  ==========================================================
 

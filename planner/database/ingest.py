@@ -56,6 +56,7 @@ from planner.contract import (
     SUPPLY,
 )
 from planner.database.connect import raw_copy_connection
+from planner.database.history import ensure_partitions
 from planner.database.migrate import ensure_schema
 from planner.database.models import SITE_KINDS, LoadBatch
 from planner.errors import PlannerError, Problem, ValidationError
@@ -948,9 +949,12 @@ def load_folder(engine: sa.Engine, folder: str | Path) -> LoadResult:
                 f"the database refused the rows of {path} ({error}); nothing was loaded"
             ) from error
     # Fresh statistics, so that the solve that usually follows a load (cron)
-    # plans its snapshot reads on the new row counts, whatever autovacuum does.
+    # plans its snapshot reads on the new row counts, whatever autovacuum does;
+    # and the new weeks' result partitions, outside the load's transaction
+    # (creating one locks its parent table; a store creates any still missing).
     with engine.begin() as connection:
         connection.execute(sa.text("ANALYZE site, site_version, period_snapshot, supply, demand, lane, lane_rate"))
+        ensure_partitions(connection, validated.periods)
     rows = {name: digest.rows for name, digest in validated.files.items()}
     counts = ", ".join(f"{name} {count:,}" for name, count in rows.items())
     return LoadResult(

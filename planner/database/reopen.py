@@ -62,10 +62,11 @@ def reopen_week(conn: Connection, period: str, run_id: int | None = None) -> Sto
     run, batch, cd, qd = (int(v) for v in row)
     scaling = Scaling(cd, qd)
     snap = read_snapshot(conn, period, scaling, batch_id=batch)
-    params = {"q": scaling.quantity_scale, "r": run}
+    # The week's code reaches the result tables' partition key: one partition read.
+    params = {"q": scaling.quantity_scale, "r": run, "p": period}
     lanes = fetch_columns(
         conn,
-        "SELECT lane_id, (flow * %(q)s)::bigint AS flow FROM run_flow WHERE run_id = %(r)s",
+        "SELECT lane_id, (flow * %(q)s)::bigint AS flow FROM run_flow WHERE run_id = %(r)s AND period = %(p)s",
         params,
         ints=["lane_id", "flow"],
     )
@@ -74,7 +75,7 @@ def reopen_week(conn: Connection, period: str, run_id: int | None = None) -> Sto
         "SELECT site_id, (coalesce(spare, 0) * %(q)s)::bigint AS spare, "
         "(coalesce(shortage, 0) * %(q)s)::bigint AS shortage, "
         "(coalesce(throughput_flow, 0) * %(q)s)::bigint AS throughput "
-        "FROM run_site_price WHERE run_id = %(r)s",
+        "FROM run_site_price WHERE run_id = %(r)s AND period = %(p)s",
         params,
         ints=["site_id", "spare", "shortage", "throughput"],
     )

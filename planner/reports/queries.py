@@ -422,20 +422,20 @@ SELECT echelon, mode, units, cost FROM (
     JOIN lane l ON l.id = f.lane_id
     JOIN site_version ov ON ov.batch_id = :batch_id AND ov.site_id = l.origin_id
     JOIN site_version dv ON dv.batch_id = :batch_id AND dv.site_id = l.destination_id
-    WHERE f.run_id = :run_id AND f.period_id = :period_id AND f.flow > 0
+    WHERE f.run_id = :run_id AND f.period = :period AND f.flow > 0
     GROUP BY 2, 3
     UNION ALL
     SELECT 2, 'warehouse handling', '', sum(r.throughput_flow),
            sum(r.throughput_flow * sv.handling_cost)
     FROM run_site_price r
     JOIN site_version sv ON sv.batch_id = :batch_id AND sv.site_id = r.site_id
-    WHERE r.run_id = :run_id AND r.period_id = :period_id AND sv.handling_cost > 0
+    WHERE r.run_id = :run_id AND r.period = :period AND sv.handling_cost > 0
     HAVING count(*) > 0
     UNION ALL
     SELECT 3, 'shortage penalty', '', sum(r.shortage), sum(r.shortage * d.shortage_penalty)
     FROM run_site_price r
     JOIN demand d ON d.batch_id = :batch_id AND d.period_id = :period_id AND d.site_id = r.site_id
-    WHERE r.run_id = :run_id AND r.period_id = :period_id AND r.shortage > 0
+    WHERE r.run_id = :run_id AND r.period = :period AND r.shortage > 0
     HAVING count(*) > 0
 ) parts
 ORDER BY part, cost DESC, echelon, mode
@@ -443,13 +443,13 @@ ORDER BY part, cost DESC, echelon, mode
 
 
 def _week_run(conn: Connection, period: str, run_id: int | None) -> dict | None:
-    """``run_id``, ``period_id``, ``batch_id`` of the week run reported on, or None.
+    """``run_id``, ``period_id``, ``period`` (code), ``batch_id`` of the week run reported on, or None.
 
     Which run is the latest is decided by the ``run_summary`` view alone.
     """
     row = conn.execute(
         text(
-            f"SELECT s.run_id, r.period_id, r.batch_id FROM {view_source('run_summary', run_id)} s "
+            f"SELECT s.run_id, r.period_id, s.period, r.batch_id FROM {view_source('run_summary', run_id)} s "
             "JOIN solve_run r ON r.id = s.run_id "
             "WHERE s.period = :period AND s.kind = 'week' AND s.status = 'optimal'"
         ),
