@@ -254,6 +254,44 @@ def test_resolve_waits_for_a_week_another_process_is_solving_and_leaves_it_to_th
     assert Counter(r.period for r in week_runs(engine)) == Counter({"2026-W40": 1, "2026-W41": 1})
 
 
+def test_resolve_does_not_solve_again_a_week_that_failed_on_its_unchanged_input(
+    engine: sa.Engine, write_folder, network_files
+) -> None:
+    files = dict(network_files)
+    files["lanes.csv"] = files["lanes.csv"].replace("2026-W41,W1,C3,,2,,", "2026-W41,W1,C3,,2.000001,,")
+    load(write_folder(files))
+    first = planner("resolve")
+    assert first.returncode == 1, first.stderr
+    lines = log_lines(first.stdout)
+    assert solved(lines) == {"2026-W40", "2026-W41"}
+    assert lines["2026-W41"].startswith("2026-W41 failed run ")
+    # The failure line says why: the figure and the precision.
+    assert "value 2.000001 has more than 4 decimals" in lines["2026-W41"]
+    assert "solve with a larger --cost-decimals" in lines["2026-W41"]
+    (failed,) = [r for r in week_runs(engine) if r.status == "failed"]
+
+    second = planner("resolve")
+    assert second.returncode == 0, second.stderr
+    line = log_lines(second.stdout)["2026-W41"]
+    assert line.startswith(f"2026-W41 skipped: input unchanged since run {failed.id}, which failed: ")
+    assert "value 2.000001 has more than 4 decimals" in line
+    assert len(week_runs(engine)) == 2
+
+    # A run failed by another version of the planner is tried again.
+    with engine.begin() as conn:
+        conn.execute(sa.text("UPDATE solve_run SET planner_version = '0.0.1' WHERE id = :id"), {"id": failed.id})
+    newer = invoke("resolve")
+    assert newer.exit_code == 1, newer.output
+    assert solved(log_lines(newer.stdout)) == {"2026-W41"}
+    assert [r.status for r in week_runs(engine)] == ["optimal", "failed", "failed"]
+
+    # Enough decimals make another input: both weeks are solved at the new precision.
+    precise = invoke("resolve", "--cost-decimals", "6")
+    assert precise.exit_code == 0, precise.output
+    assert solved(log_lines(precise.stdout)) == {"2026-W40", "2026-W41"}
+    assert week_runs(engine)[-1].status == "optimal"
+
+
 def test_two_resolves_started_together_solve_each_week_once(engine: sa.Engine, tmp_path) -> None:
     frames = benchmark_network(
         n_plants=10, n_warehouses=40, n_customers=4000, n_lanes=30_000, weeks=8, seed=5

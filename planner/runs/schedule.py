@@ -26,10 +26,14 @@ from typing import Callable, Iterable, Iterator
 from sqlalchemy import Connection, Engine, text
 from sqlalchemy.exc import SQLAlchemyError
 
+from planner import __version__
 from planner.database.locks import lock_timeout, planner_lock, week_lock_name
 from planner.database.snapshot import Scaling, current_batch, run_fingerprint
 from planner.errors import LockTimeout, PlannerError
 from planner.runs.weekly import RunSummary, solve_period
+
+#: Longest stored message a resolve log line quotes.
+MESSAGE_CHARS = 240
 
 
 @dataclass(frozen=True)
@@ -164,8 +168,12 @@ def is_stale(conn: Connection, period: str, scaling: Scaling) -> tuple[bool, str
 
     A week is stale when its latest optimal run used another input
     fingerprint, or it has none. A week whose current input already ended
-    infeasible or unbounded is not stale: solving the same input again gives
-    the same verdict.
+    infeasible or unbounded, or failed under this version of the planner, is
+    not stale: solving the same input again gives the same verdict. A run is
+    stored as failed only for what the input and the planner decide (a figure
+    with more decimals than the precision, sums past 64 bits, a certificate
+    that does not hold); a lost connection stores no run, so its week stays
+    stale. A failure stored by another planner version is tried again.
     """
     _, _, snapshot_fp = current_batch(conn, period)
     fingerprint = run_fingerprint(snapshot_fp, scaling)
@@ -173,23 +181,43 @@ def is_stale(conn: Connection, period: str, scaling: Scaling) -> tuple[bool, str
         text("SELECT run_id, finished_at, input_fingerprint FROM latest_week_run WHERE period = :period"),
         {"period": period},
     ).first()
-    failed = conn.execute(
+    settled = conn.execute(
         text(
-            "SELECT r.id, r.status FROM solve_run r JOIN period p ON p.id = r.period_id "
+            "SELECT r.id, r.status, r.message FROM solve_run r JOIN period p ON p.id = r.period_id "
             "WHERE p.code = :period AND r.kind = 'week' AND r.input_fingerprint = :fp "
-            "AND r.status IN ('infeasible', 'unbounded') "
+            "AND (r.status IN ('infeasible', 'unbounded') OR (r.status = 'failed' AND r.planner_version = :version)) "
             "AND (CAST(:since AS timestamptz) IS NULL OR r.finished_at > :since) "
             "ORDER BY r.finished_at DESC, r.id DESC LIMIT 1"
         ),
-        {"period": period, "fp": fingerprint, "since": None if latest is None else latest.finished_at},
+        {
+            "period": period,
+            "fp": fingerprint,
+            "version": __version__,
+            "since": None if latest is None else latest.finished_at,
+        },
     ).first()
-    if failed is not None:
-        return False, f"input unchanged since run {failed.id}, which was {failed.status}"
+    if settled is not None:
+        verdict = "failed" if settled.status == "failed" else f"was {settled.status}"
+        return False, f"input unchanged since run {settled.id}, which {verdict}: {brief(settled.message)}"
     if latest is None:
         return True, "never solved"
     if latest.input_fingerprint != fingerprint:
         return True, f"input changed since run {latest.run_id}"
     return False, f"up to date (run {latest.run_id})"
+
+
+def brief(message: str | None) -> str:
+    """A stored message on one line, cut to :data:`MESSAGE_CHARS`.
+
+    Examples
+    --------
+    >>> brief("week 2026-W49 is infeasible:   30 units  short")
+    'week 2026-W49 is infeasible: 30 units short'
+    >>> len(brief("x" * 1000)) == MESSAGE_CHARS
+    True
+    """
+    line = " ".join((message or "no message stored").split())
+    return line if len(line) <= MESSAGE_CHARS else line[: MESSAGE_CHARS - 3] + "..."
 
 
 def stale_periods(engine: Engine, scaling: Scaling = Scaling()) -> list[tuple[str, str]]:
@@ -312,7 +340,8 @@ def _solve_if_stale(
     report.outcomes.append(outcome)
     s = outcome.summary
     if s is None:
-        log(f"{period} failed: {outcome.note}")
+        log(f"{period} failed: {brief(outcome.note)}")
         return
     cost = "-" if s.cost is None else f"{s.cost:.2f}"
-    log(f"{period} {s.status} run {s.run_id} cost {cost} ({why}) {s.seconds['total']:.2f}s")
+    line = f"{period} {s.status} run {s.run_id} cost {cost} ({why}) {s.seconds['total']:.2f}s"
+    log(line if s.ok else f"{line}: {brief(s.message)}")
