@@ -64,7 +64,10 @@ def periods(database_url: Optional[str] = DATABASE_URL) -> None:
     """
     from planner.runs.weekly import period_overview
 
-    rows = period_overview(engine(database_url))
+    try:
+        rows = period_overview(engine(database_url))
+    except PlannerError as err:
+        fail(err)
     if not rows:
         console.print("no periods loaded yet; load a folder with `planner load DIR`")
         return

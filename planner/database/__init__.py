@@ -3,6 +3,7 @@
 =====================  ==========================================================
 :mod:`.connect`         URLs, the embedded server, engines
 :mod:`.migrate`         keeping the schema current (Alembic glue)
+:mod:`.locks`           locks only the planner can take (rows of ``planner_lock``), bounded waits
 :mod:`.models`          SQLAlchemy 2 typed models of the tables
 :mod:`.ingest`          CSV folders validated and loaded as one batch by COPY
 :mod:`.snapshot`        a period's snapshot -> ``WeekData``, scaled exactly in PostgreSQL

@@ -35,6 +35,7 @@ __all__ = [
     "LoadBatch",
     "Period",
     "PeriodSnapshot",
+    "PlannerLock",
     "RunFlow",
     "RunLimit",
     "RunPin",
@@ -373,6 +374,19 @@ class RunPin(Base):
     pinned_at: Mapped[datetime.datetime] = mapped_column(sa.DateTime(timezone=True), server_default=sa.func.now())
     pinned_by: Mapped[str] = mapped_column(sa.Text, server_default=sa.text("current_user"))
     note: Mapped[str | None] = mapped_column(sa.Text)
+
+
+class PlannerLock(Base):
+    """A row the planner locks to serialise loads (``load``) or a week's solves (``week 2026-W49``).
+
+    Held with ``SELECT ... FOR UPDATE`` for the guarded work (migration 0007);
+    the reporting role has no right on the table, so it cannot take these locks.
+    """
+
+    __tablename__ = "planner_lock"
+    __table_args__ = {"comment": "rows the planner locks (FOR UPDATE) to serialise loads and each week's solves; no other role may take them"}
+
+    name: Mapped[str] = mapped_column(sa.Text, primary_key=True)
 
 
 #: The ``site_price_history`` view (created by migration 0001) for Core queries; it is
