@@ -199,8 +199,10 @@ def pylmcf_cases(inst, cases, cold_s, rng) -> None:
         graph.solve()
         seconds = time.perf_counter() - start
         flow = pylmcf_flow(graph, edited, order)
+        cert = certify(edited, flow, np.zeros(edited.n_nodes, np.int64))  # primal feasibility only
+        feasible = cert.max_conservation_violation == 0 and cert.max_bound_violation == 0
         print(f"pylmcf ({name}) warm {seconds:.3f} s, warm/cold {seconds / cold_s:.4f}, "
-              f"cost {int(edited.cost @ flow)}; warm starts {graph.warm_start_count()}, "
+              f"cost {int(edited.cost @ flow)}, flow feasible: {feasible}; warm starts {graph.warm_start_count()}, "
               f"cold starts {graph.cold_start_count()}")
 
 
