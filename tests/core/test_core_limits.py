@@ -1,0 +1,169 @@
+"""Database-free tests of :mod:`planner.core.limits` and :mod:`planner.core.rates` on hand-computed weeks.
+
+The week is ``one_week`` of ``test_core_network`` with its hand-computed
+optimum (see ``test_core_solve``): 4 units along 0 -> 3 -> 2 (6 a unit, lane
+3 -> 2 full at 4) and 4 along 0 -> 1 -> 4 -> 2 (9 a unit), 2 units spare, a
+shortage at 100. Every value below is worked out in the comment beside it,
+as the cost of the cheapest reroute of one unit.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from planner.core.limits import CAPACITY, MINIMUM, TightenBlock, ZeroComponents, limit_values
+from planner.core.network import assemble_instance
+from planner.core.paths import UNLIMITED
+from planner.core.rates import limit_rate_ranges, rate_ranges
+from planner.core.residual import feasible_potential, residual_graph
+from planner.core.solve import solve_flow
+from planner.core.week import NONE, WeekData
+from tests.core.test_core_network import one_week
+
+
+def solved(week):
+    inst = assemble_instance(week)
+    flow = solve_flow(inst).flow
+    res = residual_graph(inst, flow)
+    return inst, flow, res, feasible_potential(inst, res)
+
+
+def test_limit_values_of_the_hand_week():
+    inst, flow, res, pi = solved(one_week())
+    v = limit_values(inst, flow, res, pi)
+    # Only lane 3 -> 2 (arc 3) is at a limit. One more unit on it replaces a unit through
+    # warehouse 1: saves 9 - 6 = 3, for 3 units (lane 0 -> 1 can give back 4 - 1 above its minimum).
+    # One unit less sends it through warehouse 1: costs 3, for 2 units (the throughput has 2 left).
+    assert v.arc.tolist() == [3] and v.side.tolist() == [CAPACITY]
+    assert (v.loosen.tolist(), v.loosen_units.tolist()) == ([3], [3])
+    assert (v.tighten.tolist(), v.tighten_units.tolist(), v.blocked.tolist()) == ([3], [2], [TightenBlock.NONE])
+    assert v.per_arc(inst.n_arcs).tolist() == [0, 0, 0, 3, 0, 0, 0, 0]
+    assert v.per_arc(inst.n_arcs, MINIMUM).tolist() == [0] * 8
+
+
+def minimum_week(minimum, capacity=7):
+    w = one_week()
+    return WeekData.from_arrays(
+        w.site_kind, w.lane_origin, w.lane_destination, w.lane_cost, supply=w.supply, demand=w.demand,
+        shortage_penalty=w.shortage_penalty, throughput_capacity=w.throughput_capacity,
+        handling_cost=w.handling_cost, lane_capacity=[capacity, NONE, NONE, 4], lane_min=[minimum, 0, 0, 0],
+    )
+
+
+def test_limit_values_with_a_minimum_at_its_bound():
+    inst, flow, res, pi = solved(minimum_week(4))
+    assert flow.tolist() == [4, 4, 4, 4, 4, 2, 0, 0]  # the same optimum: lane 0 -> 1 carries exactly 4
+    v = limit_values(inst, flow, res, pi)
+    rows = {(int(a), int(s)): i for i, (a, s) in enumerate(zip(v.arc, v.side))}
+    assert sorted(rows) == [(0, MINIMUM), (3, CAPACITY)]
+    cap, low = rows[(3, CAPACITY)], rows[(0, MINIMUM)]
+    # Lane 3 -> 2: one more unit would have to come off the route through warehouse 1, which the
+    # minimum of 4 on lane 0 -> 1 forbids: it saves nothing, for any number of units.
+    assert (v.loosen[cap], v.loosen_units[cap]) == (0, UNLIMITED)
+    # One unit less still goes round through warehouse 1 at +3, for 2 units (throughput).
+    assert (v.tighten[cap], v.tighten_units[cap], v.blocked[cap]) == (3, 2, TightenBlock.NONE)
+    # Lane 0 -> 1's minimum: one unit less committed saves nothing (the lane is used anyway) ...
+    assert (v.loosen[low], v.loosen_units[low]) == (0, 4)
+    # ... one more committed unit displaces one from 0 -> 3 -> 2: 9 - 6 = 3, for 2 units (throughput).
+    assert (v.tighten[low], v.tighten_units[low], v.blocked[low]) == (3, 2, TightenBlock.NONE)
+    assert v.per_arc(inst.n_arcs, MINIMUM).tolist() == [0] * 8
+
+
+def test_limits_that_cannot_be_tightened_say_why():
+    # Minimum 4 = capacity 4 on lane 0 -> 1: one unit less capacity falls below the minimum, one
+    # more committed unit exceeds the capacity.
+    inst, flow, res, pi = solved(minimum_week(4, capacity=4))
+    v = limit_values(inst, flow, res, pi)
+    blocked = {(int(a), int(s)): int(b) for a, s, b in zip(v.arc, v.side, v.blocked)}
+    assert blocked[(0, CAPACITY)] == TightenBlock.BELOW_MINIMUM
+    assert blocked[(0, MINIMUM)] == TightenBlock.ABOVE_CAPACITY
+    assert blocked[(3, CAPACITY)] == TightenBlock.NONE
+    for i in np.flatnonzero(v.blocked != TightenBlock.NONE):
+        assert v.tighten[i] == 0 and v.tighten_units[i] == 0
+    # A single lane that must carry all demand: one unit less leaves no feasible plan.
+    single = WeekData.from_arrays([0, 2], [0], [1], [5], supply=[3, 0], demand=[0, 3], lane_capacity=[3])
+    inst, flow, res, pi = solved(single)
+    v = limit_values(inst, flow, res, pi)
+    assert v.arc.tolist() == [0] and v.blocked.tolist() == [TightenBlock.NO_ROUTE]
+    assert (v.tighten.tolist(), v.tighten_units.tolist(), v.loosen.tolist()) == ([0], [0], [0])
+
+
+def test_other_optimal_duals_only_skip_searches():
+    inst, flow, res, pi = solved(one_week())
+    plain = limit_values(inst, flow, res, pi)
+    other = limit_values(inst, flow, res, pi, other_duals=((pi, np.ones(inst.n_nodes, bool)),))
+    for field in ("arc", "side", "loosen", "loosen_units", "tighten", "tighten_units", "blocked"):
+        assert getattr(plain, field).tolist() == getattr(other, field).tolist()
+
+
+def test_rate_ranges_of_the_hand_week():
+    inst, flow, res, pi = solved(one_week())
+    rr = rate_ranges(inst, flow, res, pi, [0, 1, 2, 3], routes=True)
+    assert rr.arc.tolist() == [0, 1, 2, 3] and rr.rate.tolist() == [3, 4, 5, 1]
+    # Lane 0 -> 1 (3): below 0 the route through warehouse 1 (rate + 6) beats 6; above 94 the
+    # shortage (100) beats rate + 6. Lane 4 -> 2 (4): below 1 (3 + 2 + rate < 6); above 95
+    # (rate + 5 > 100). Lane 0 -> 3 (5): no lower end (it cannot take more: 3 -> 2 is full); above 8
+    # (rate + 1 > 9). Lane 3 -> 2 (1, full): no lower end; above 4 (5 + rate > 9).
+    assert rr.low.tolist() == [0, 1, 0, 0] and rr.has_low.tolist() == [True, True, False, False]
+    assert rr.high.tolist() == [94, 95, 8, 4] and rr.has_high.tolist() == [True] * 4
+    # Routes: the lower end from the lane's destination back to its origin, the upper end from its
+    # origin to its destination, as (instance arc, forward) steps.
+    assert rr.low_route == [
+        [(4, True), (1, True), (3, False), (2, False)],
+        [(3, False), (2, False), (0, True), (4, True)],
+        [],
+        [],
+    ]
+    assert rr.high_route == [
+        [(5, True), (7, True), (6, True), (1, False), (4, False)],
+        [(4, False), (0, False), (5, True), (7, True), (6, True)],
+        [(0, True), (4, True), (1, True), (3, False)],
+        [(2, False), (0, True), (4, True), (1, True)],
+    ]
+    # Without routes the ends are the same, and a prepared contracted graph changes nothing.
+    graph = ZeroComponents(inst.n_nodes, res, res.weight + pi[res.tail] - pi[res.head])
+    for kwargs in ({}, {"graph": graph}):
+        again = rate_ranges(inst, flow, res, pi, [3, 2, 1, 0], **kwargs)
+        assert again.low_route is None and again.high_route is None
+        assert again.low.tolist() == [0, 0, 1, 0] and again.high.tolist() == [4, 8, 95, 94]
+        assert again.arc.tolist() == [3, 2, 1, 0] and again.rate.tolist() == [1, 5, 4, 3]
+
+
+def test_rate_range_of_a_single_arc_and_of_lanes_at_their_limits():
+    inst, flow, res, pi = solved(one_week())
+    one = rate_ranges(inst, flow, res, pi, 3)
+    assert one.arc.tolist() == [3] and one.high.tolist() == [4] and one.has_low.tolist() == [False]
+    # Read off the limit values: lane 3 -> 2 at capacity, its upper end is 1 + 3 = 4.
+    read = limit_rate_ranges(inst, limit_values(inst, flow, res, pi))
+    assert read.arc.tolist() == [3] and read.rate.tolist() == [1]
+    assert (read.high.tolist(), read.has_high.tolist(), read.low.tolist(), read.has_low.tolist()) == (
+        [4], [True], [0], [False])
+
+
+def test_rate_ranges_read_off_a_minimum():
+    inst, flow, res, pi = solved(minimum_week(4))
+    read = limit_rate_ranges(inst, limit_values(inst, flow, res, pi))
+    rows = dict(zip(read.arc.tolist(), zip(read.low.tolist(), read.has_low.tolist(),
+                                            read.high.tolist(), read.has_high.tolist())))
+    # Lane 0 -> 1 at its minimum: lower end 3 - 3 = 0 (one more committed unit costs 3); lane 3 -> 2
+    # at capacity: upper end 1 + 3 = 4.
+    assert rows == {0: (0, True, 0, False), 3: (0, False, 4, True)}
+    searched = rate_ranges(inst, flow, res, pi, [0, 3])
+    assert searched.low.tolist() == [0, 0] and searched.has_low.tolist() == [True, False]
+    # Lane 0 -> 1 carries no flow above its minimum: its upper end is open.
+    assert searched.high.tolist() == [0, 4] and searched.has_high.tolist() == [False, True]
+
+
+@pytest.mark.parametrize("engine", ["compiled", "scipy"])
+def test_zero_components_distances_hand_week(engine):
+    inst, flow, res, pi = solved(one_week())
+    graph = ZeroComponents(inst.n_nodes, res, res.weight + pi[res.tail] - pi[res.head], engine=engine)
+    # Reduced distances (real distance + pi(source) - pi(target)), hand computed:
+    # 2 -> 3 is 0 (through warehouse 1, then lane 0 -> 3), 3 -> 2 is 0, SHORT -> 2 is 91,
+    # 0 -> 6 is 0 (SPARE -> SHORT), nothing leaves node 3 but the way back to the plant.
+    dist, reached, units = graph.distances([2, 3, 6, 0], [3, 2, 2, 6])
+    assert dist.tolist() == [0, 0, 91, 0] and reached.all()
+    # With a radius of 90 the 91 is out of reach.
+    dist, reached, _ = graph.distances([6, 2], [2, 3], radius=[90, 5])
+    assert reached.tolist() == [False, True] and dist.tolist() == [0, 0]
