@@ -7,6 +7,8 @@ Run from the repository root, in a virtualenv with the ``mutation`` extra::
     python tools/mutation.py --fresh         # forget the results of an earlier run
     python tools/mutation.py --report-only   # score and survivors of the last run
     python tools/mutation.py --jobs 4 --work /tmp/mutation
+    python tools/mutation.py --retest        # after adding tests: retest the mutants not killed
+    python tools/mutation.py --sample 0.25   # a seeded random quarter of the mutants only
 
 What it does: copies ``planner/``, ``tests/`` and ``pyproject.toml`` into a scratch
 folder (``build/mutation`` by default, ignored by git), adds a ``[tool.mutmut]``
@@ -140,11 +142,15 @@ def _copy_if_changed(source: str, target: str) -> str:
     return shutil.copy2(source, target)
 
 
-def run_mutmut(work: Path, jobs: int, examples: int) -> int:
-    """Run ``mutmut run`` in ``work`` with ``examples`` per property test; return its exit code."""
+def run_mutmut(work: Path, jobs: int, examples: int, names: list[str] | None = None) -> int:
+    """Run ``mutmut run`` in ``work`` with ``examples`` per property test; return its exit code.
+
+    With ``names``, only those mutants are tested (again, if they were before).
+    """
     mutmut = Path(sys.executable).with_name("mutmut")
     command = [str(mutmut) if mutmut.exists() else "mutmut", "run", "--max-children", str(jobs)]
-    print("+", " ".join(command), f"(in {work})", flush=True)
+    print("+", " ".join(command), f"[{len(names)} mutants]" if names else "", f"(in {work})", flush=True)
+    command += names or []
     env = dict(os.environ, MUTATION_MAX_EXAMPLES=str(examples))
     return subprocess.run(command, cwd=work, env=env, check=False).returncode
 
@@ -161,6 +167,24 @@ def read_results(work: Path) -> dict[str, dict[str, str]]:
         data = json.loads(meta.read_text(encoding="utf-8"))
         results[module] = {name: status_by_exit_code[code] for name, code in data["exit_code_by_key"].items()}
     return results
+
+
+def pick(results: dict[str, dict[str, str]], fraction: float | None, seed: int, retest: bool) -> list[str]:
+    """Names of the mutants to test: a seeded random ``fraction`` of all, or those not killed."""
+    import random
+
+    names = [name for statuses in results.values() for name in statuses]
+    if retest:
+        return [name for statuses in results.values() for name, status in statuses.items() if status not in KILLED]
+    if fraction is None:
+        return []
+    return sorted(random.Random(seed).sample(names, round(fraction * len(names))))
+
+
+def restrict(results: dict[str, dict[str, str]], names: list[str]) -> dict[str, dict[str, str]]:
+    """``results`` of the mutants in ``names`` only."""
+    chosen = set(names)
+    return {module: {n: s for n, s in statuses.items() if n in chosen} for module, statuses in results.items()}
 
 
 def score_table(results: dict[str, dict[str, str]]) -> str:
@@ -251,22 +275,37 @@ def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--work", type=Path, default=ROOT / "build" / "mutation", help="scratch folder")
     parser.add_argument("--jobs", type=int, default=os.cpu_count() or 2, help="mutants tested at once")
-    parser.add_argument("--examples", type=int, default=25, help="Hypothesis examples per property test")
+    parser.add_argument("--examples", type=int, default=10, help="Hypothesis examples per property test")
     parser.add_argument("--fresh", action="store_true", help="start over: delete the scratch folder first")
     parser.add_argument("--report-only", action="store_true", help="only print the score of the last run")
+    parser.add_argument("--sample", type=float, help="test only this seeded random fraction of the mutants")
+    parser.add_argument("--seed", type=int, default=1, help="seed of --sample")
+    parser.add_argument("--retest", action="store_true", help="retest the mutants the last run did not kill")
     parser.add_argument("--survivors", type=Path, help="where to write the survivors (default <work>/survivors.txt)")
     args = parser.parse_args(argv)
     work = args.work.resolve()
+    names: list[str] = []
+    if (args.sample is not None or args.retest) and not read_results(work):
+        print(f"--sample and --retest need the mutants of an earlier run in {work}", file=sys.stderr)
+        return 1
     if not args.report_only:
         prepare(work, args.fresh)
-        code = run_mutmut(work, args.jobs, args.examples)
-        if code != 0:
-            print(f"mutmut run exited with {code}", file=sys.stderr)
-            return code
+        names = pick(read_results(work), args.sample, args.seed, args.retest)
+        if args.retest and not names:
+            print("every mutant is killed already")
+        else:
+            code = run_mutmut(work, args.jobs, args.examples, names)
+            if code != 0:
+                print(f"mutmut run exited with {code}", file=sys.stderr)
+                return code
     results = read_results(work)
     if not results:
         print(f"no results in {work}: run without --report-only first", file=sys.stderr)
         return 1
+    if args.sample is not None:
+        names = pick(results, args.sample, args.seed, False)
+        results = restrict(results, names)
+        print(f"sample of {len(names)} mutants (seed {args.seed})")
     print(score_table(results))
     target = args.survivors or work / "survivors.txt"
     count = write_survivors(work, results, target)
