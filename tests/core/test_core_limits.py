@@ -167,3 +167,23 @@ def test_zero_components_distances_hand_week(engine):
     # With a radius of 90 the 91 is out of reach.
     dist, reached, _ = graph.distances([6, 2], [2, 3], radius=[90, 5])
     assert reached.tolist() == [False, True] and dist.tolist() == [0, 0]
+
+
+def test_values_ranges_and_distances_are_exact_integer_arrays():
+    # Common practice, no source: exact figures stay integer arrays (int64; int8 codes; bool masks).
+    inst, flow, res, pi = solved(minimum_week(4))
+    v = limit_values(inst, flow, res, pi)
+    for name in ("arc", "loosen", "loosen_units", "tighten", "tighten_units"):
+        assert getattr(v, name).dtype == np.int64, name
+    assert v.side.dtype == np.int8 and v.blocked.dtype == np.int8
+    assert v.per_arc(inst.n_arcs).dtype == np.int64
+    rr = rate_ranges(inst, flow, res, pi, [0, 3])
+    assert rr.low.dtype == np.int64 and rr.high.dtype == np.int64 and rr.rate.dtype == np.int64
+    assert rr.has_low.dtype == bool and rr.has_high.dtype == bool
+    read = limit_rate_ranges(inst, v)
+    assert read.low.dtype == np.int64 and read.high.dtype == np.int64
+    graph = ZeroComponents(inst.n_nodes, res, res.weight + pi[res.tail] - pi[res.head])
+    dist, reached, units = graph.distances([2, 3, 0], [3, 2, 6])
+    assert dist.dtype == np.int64 and reached.dtype == bool and units.dtype == np.int64
+    dist, reached, units = graph.distances([1], [1])
+    assert dist.tolist() == [0] and reached.tolist() == [True] and dist.dtype == np.int64

@@ -133,3 +133,11 @@ def test_marginal_route_stops_on_a_broken_tree():
     pred[2] = 3
     broken = dataclasses.replace(pr, pred_high=pred)
     assert len(marginal_path(inst, broken, res, 3)) == inst.n_nodes
+
+
+def test_price_ranges_are_exact_integer_arrays():
+    # Common practice, no source: prices stay exact integers (int64) with boolean masks.
+    _, _, pr = hand_ranges()
+    for name in ("potential", "high", "low", "high_units", "price", "pred_high", "pred_high_arc"):
+        assert getattr(pr, name).dtype == np.int64, name
+    assert pr.has_high.dtype == bool and pr.has_low.dtype == bool
