@@ -187,3 +187,37 @@ def test_values_ranges_and_distances_are_exact_integer_arrays():
     assert dist.dtype == np.int64 and reached.dtype == bool and units.dtype == np.int64
     dist, reached, units = graph.distances([1], [1])
     assert dist.tolist() == [0] and reached.tolist() == [True] and dist.dtype == np.int64
+
+
+def test_lower_end_of_a_lane_at_its_minimum_read_off_its_value():
+    # one_week with lane 3 -> 2 at rate 2: the route through warehouse 3 costs 5 + 2 = 7, the one
+    # through warehouse 1 3 + 2 + 4 = 9; the flow stays as in one_week, lane 0 -> 1 at its minimum 4.
+    w = minimum_week(4)
+    w = WeekData.from_arrays(
+        w.site_kind, w.lane_origin, w.lane_destination, [3, 4, 5, 2], supply=w.supply, demand=w.demand,
+        shortage_penalty=w.shortage_penalty, throughput_capacity=w.throughput_capacity,
+        handling_cost=w.handling_cost, lane_capacity=w.lane_capacity, lane_min=w.lane_min,
+    )
+    inst, flow, res, pi = solved(w)
+    assert flow.tolist() == [4, 4, 4, 4, 4, 2, 0, 0]
+    read = limit_rate_ranges(inst, limit_values(inst, flow, res, pi))
+    rows = dict(zip(read.arc.tolist(), zip(read.low.tolist(), read.has_low.tolist(),
+                                            read.high.tolist(), read.has_high.tolist())))
+    # Lane 0 -> 1 (3): below 1 the route through warehouse 1 (rate + 6) beats 7: lower end 1.
+    # Lane 3 -> 2 (2): above 4 the route through warehouse 3 (5 + rate) loses to 9: upper end 4.
+    assert rows == {0: (1, True, 0, False), 3: (0, False, 4, True)}
+
+
+def test_rate_ends_at_a_tie_between_two_lanes():
+    # Plant (10) -> customer (4) on two lanes of rate 5 without capacity. A lane that carries flow
+    # keeps it up to 5 (above, the other lane is cheaper: a path of reduced length 0) and below any
+    # rate once the other lane is idle (no flow elsewhere to win); it wins flow below 5 when the
+    # other lane carries some. Hand computed, whichever way the solver splits the 4 units.
+    w = WeekData.from_arrays([0, 2], [0, 0], [1, 1], [5, 5], supply=[10, 0], demand=[0, 4])
+    inst, flow, res, pi = solved(w)
+    rr = rate_ranges(inst, flow, res, pi, [0, 1], routes=True)
+    carries = flow[:2] > 0
+    assert rr.has_high.tolist() == carries.tolist()
+    assert rr.high.tolist() == np.where(carries, 5, 0).tolist()
+    assert rr.has_low.tolist() == carries[::-1].tolist()
+    assert rr.low.tolist() == np.where(carries[::-1], 5, 0).tolist()

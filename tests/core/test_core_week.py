@@ -74,3 +74,8 @@ def test_scale_exact_tolerance_is_relative_for_large_figures_only():
         scale_exact([1.0000015], 0, "quantity")
     # 3.0000005 is off by 5e-7 <= 1e-6 * 3: kept as 3.
     assert scale_exact([3.0000005], 0, "quantity").tolist() == [3]
+
+
+def test_scale_exact_accepts_an_error_of_exactly_the_tolerance():
+    # 1e-6 at 0 decimals is off the integer 0 by 1e-6 = 1e-6 * max(1, 1e-6): accepted as 0 (hand computed).
+    assert scale_exact([1e-6], 0, "quantity").tolist() == [0]
