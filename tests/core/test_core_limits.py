@@ -221,3 +221,32 @@ def test_rate_ends_at_a_tie_between_two_lanes():
     assert rr.high.tolist() == np.where(carries, 5, 0).tolist()
     assert rr.has_low.tolist() == carries[::-1].tolist()
     assert rr.low.tolist() == np.where(carries[::-1], 5, 0).tolist()
+
+
+def test_a_minimum_of_one_unit_at_its_bound_and_idle_lanes_without_one():
+    # Plant (10) -> customer (3) on lane A (rate 1) and lane B (rate 5, minimum 1): B carries its
+    # one committed unit, A the other 2. Hand computed: one unit less committed on B moves it to A,
+    # saving 5 - 1 = 4, for that 1 unit; one more committed unit costs 5 - 1 = 4, for the 2 units
+    # A can give up; B has no capacity, so nothing blocks it.
+    w = WeekData.from_arrays([0, 2], [0, 0], [1, 1], [1, 5], supply=[10, 0], demand=[0, 3], lane_min=[0, 1])
+    inst, flow, res, pi = solved(w)
+    assert flow[:2].tolist() == [2, 1]
+    v = limit_values(inst, flow, res, pi)
+    assert v.arc.tolist() == [1] and v.side.tolist() == [MINIMUM]
+    assert (v.loosen.tolist(), v.loosen_units.tolist()) == ([4], [1])
+    assert (v.tighten.tolist(), v.tighten_units.tolist(), v.blocked.tolist()) == ([4], [2], [TightenBlock.NONE])
+    assert v.per_arc(inst.n_arcs, MINIMUM).tolist() == [0, 4, 0]
+    # A week of idle lanes without minimums or capacities has no limit at its bound at all.
+    idle = WeekData.from_arrays([0, 0, 2], [0, 1], [2, 2], [1, 9], supply=[5, 5, 0], demand=[0, 0, 3])
+    inst, flow, res, pi = solved(idle)
+    assert flow[:2].tolist() == [3, 0]
+    assert limit_values(inst, flow, res, pi).arc.tolist() == []
+
+
+def test_routes_are_empty_where_an_end_is_open():
+    inst, flow, res, pi = solved(minimum_week(4))
+    rr = rate_ranges(inst, flow, res, pi, [0, 3], routes=True)
+    # Lane 0 -> 1 at its minimum has no upper end, lane 3 -> 2 at capacity no lower end.
+    assert rr.high_route[0] == [] and rr.low_route[1] == []
+    # Lane 0 -> 1's lower end: back from warehouse 1 through 4, the customer, warehouse 3 to the plant.
+    assert rr.low_route[0] == [(4, True), (1, True), (3, False), (2, False)]

@@ -124,6 +124,22 @@ def test_optimize_bad_weeks():
     assert out.status == FAILED and "overflow 64-bit integers" in out.message
 
 
+def test_solver_time_and_lane_names_are_passed_on(monkeypatch):
+    short = WeekData.from_arrays([0, 2], [0], [1], [5], supply=[9, 0], demand=[0, 5], lane_capacity=[4])
+    inst = assemble_instance(short)
+    infeasible = FlowSolution(INFEASIBLE, None, 0, 0.75)
+    monkeypatch.setattr(optimize_module, "solve_flow", lambda _: infeasible)
+    out = optimize(inst, site_codes=["P", "C"], lane_labels=["P->C road"], period_codes=["2026-W02"])
+    assert out.status == INFEASIBLE and out.solver_seconds == 0.75
+    assert "Limiting lanes (at capacity): P->C road (cap 4)." in out.message
+    hand = assemble_instance(one_week())
+    optimal = FlowSolution(OPTIMAL, np.array([4, 4, 4, 4, 4, 2, 0, 0]), 60, 0.5)
+    monkeypatch.setattr(optimize_module, "solve_flow", lambda _: optimal)
+    out = optimize(hand)
+    assert out.ok and out.solver_seconds == 0.5
+    assert analyse_flow(hand, optimal.flow).solver_seconds == 0.0
+
+
 def test_a_flow_that_is_not_optimal_fails(monkeypatch):
     inst = assemble_instance(one_week())
     # All 8 units through warehouse 1: feasible, but a negative residual cycle is left.
