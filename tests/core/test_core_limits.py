@@ -250,3 +250,49 @@ def test_routes_are_empty_where_an_end_is_open():
     assert rr.high_route[0] == [] and rr.low_route[1] == []
     # Lane 0 -> 1's lower end: back from warehouse 1 through 4, the customer, warehouse 3 to the plant.
     assert rr.low_route[0] == [(4, True), (1, True), (3, False), (2, False)]
+
+
+def two_full_lanes():
+    """Plant (10) -> customer (4) on lane A (rate 1, cap 2), lane B (rate 3, cap 2), lane D (rate 10)."""
+    return WeekData.from_arrays([0, 2], [0, 0, 0], [1, 1, 1], [1, 3, 10], supply=[10, 0], demand=[0, 4],
+                                lane_capacity=[2, 2, NONE])
+
+
+def test_limit_values_do_not_depend_on_the_optimal_dual_used():
+    inst = assemble_instance(two_full_lanes())
+    flow = solve_flow(inst).flow
+    assert flow.tolist() == [2, 2, 0, 6]  # A and B full, D idle, 6 units spare (hand computed)
+    res = residual_graph(inst, flow)
+    # The customer's price may be anything in [3, 10]; 10 leaves the way back through B (reduced
+    # cost 7) slack. Hand computed either way: one more unit on A replaces one on B, saving
+    # 3 - 1 = 2, for 2 units; one more on B saves nothing (it would replace one on A). One unit less
+    # on A or B goes through D: costs 10 - 1 = 9 and 10 - 3 = 7, for the 2 units each lane carries.
+    for customer in (3, 10):
+        v = limit_values(inst, flow, res, np.array([0, customer, 0, 0]))
+        assert v.arc.tolist() == [0, 1] and v.side.tolist() == [CAPACITY, CAPACITY]
+        assert (v.loosen.tolist(), v.loosen_units.tolist()) == ([2, 0], [2, UNLIMITED])
+        assert (v.tighten.tolist(), v.tighten_units.tolist()) == ([9, 7], [2, 2])
+
+
+def test_other_duals_finite_at_one_end_only_are_ignored():
+    inst = assemble_instance(two_full_lanes())
+    flow = solve_flow(inst).flow
+    res = residual_graph(inst, flow)
+    pi = np.array([0, 10, 0, 0])
+    # A dual known at the plant only: its value at the customer is garbage that would show a reduced
+    # cost of 1 + 0 + 10**6 >= 0 on lane A, i.e. "nothing to gain", if it were read.
+    garbage = (np.array([0, -10**6, 0, 0]), np.array([True, False, True, True]))
+    v = limit_values(inst, flow, res, pi, other_duals=(garbage,))
+    assert v.loosen.tolist() == [2, 0] and v.tighten.tolist() == [9, 7]
+
+
+def test_a_minimum_one_unit_below_its_capacity_can_still_be_raised():
+    # Lane B (rate 5, minimum 1, capacity 2) beside lane A (rate 1): B carries its 1 unit; one more
+    # committed unit fits under the capacity, costs 5 - 1 = 4, for 1 unit (hand computed).
+    w = WeekData.from_arrays([0, 2], [0, 0], [1, 1], [1, 5], supply=[10, 0], demand=[0, 3], lane_min=[0, 1],
+                             lane_capacity=[NONE, 2])
+    inst, flow, res, pi = solved(w)
+    v = limit_values(inst, flow, res, pi, other_duals=((pi, np.ones(inst.n_nodes, bool)),))
+    assert v.arc.tolist() == [1] and v.side.tolist() == [MINIMUM]
+    assert (v.tighten.tolist(), v.tighten_units.tolist(), v.blocked.tolist()) == ([4], [1], [TightenBlock.NONE])
+    assert (v.loosen.tolist(), v.loosen_units.tolist()) == ([4], [1])
