@@ -149,3 +149,41 @@ def test_cycle_in_a_later_period_is_named_with_its_period():
     assert describe_cycle(inst, cycle, ["A", "B"], period_codes=["2026-W10", "2026-W11"]).startswith(
         "unbounded: the lanes A in 2026-W11, B in 2026-W11 form a cycle of cost -1.50 per unit"
     )
+
+
+def test_eleven_names_are_ten_and_one_more():
+    kinds = [P] + [C] * 11
+    week = WeekData.from_arrays(kinds, [], [], [], supply=[100] + [0] * 11, demand=[0] + [1] * 11)
+    codes = ["P"] + [f"C{i:02d}" for i in range(1, 12)]
+    d = diagnose_infeasible(assemble_instance(week), site_codes=codes)
+    shown = ", ".join(f"C{i:02d} (1)" for i in range(1, 11))
+    assert f"Customers short: {shown} and 1 more. " in d.message
+
+
+def test_only_minimums_that_cannot_be_met_are_named():
+    # Plant P (10) -> customer C (needs nothing) with a minimum of 1, plant Q (nothing) -> C without
+    # a minimum, P -> customer D (2) with a minimum of 1. The unit forced into C has nowhere to go;
+    # D's minimum is met; Q -> C commits nothing (hand computed).
+    week = WeekData.from_arrays([P, P, C, C], [0, 1, 0], [2, 2, 3], [1, 1, 1], supply=[10, 0, 0, 0],
+                                demand=[0, 0, 0, 2], lane_min=[1, 0, 1])
+    d = diagnose_infeasible(assemble_instance(week), site_codes=["P", "Q", "C", "D"],
+                            lane_labels=["P->C road", "Q->C road", "P->D road"], period_codes=WEEK)
+    assert (d.shortfall, d.unmet_minimums, d.short_customers, d.limiting_arcs) == (1, [0], [], [])
+    assert d.message == (
+        "week 2026-W10 is infeasible: 1 unit cannot be moved as required. "
+        "Lane minimums that cannot be met: P->C road (min 1): C cannot pass it on. "
+        "Lower these minimums or route supply to the sites that must ship them."
+    )
+
+
+def test_the_cut_follows_a_unit_that_could_be_sent_elsewhere():
+    # Plant P (2) -> warehouse W -> customers X (1) and C2 (2); plant Q (5) -> X on a lane of capacity
+    # 0. One unit is short. Whichever customer the maximum flow leaves short, the short region holds
+    # X (a unit W sends to X could go to C2 instead), so Q -> X is a limiting lane: capacity there
+    # lets Q serve X and frees W's unit (hand computed).
+    week = WeekData.from_arrays([P, P, W, C, C], [0, 2, 2, 1], [2, 3, 4, 3], [1, 1, 1, 1],
+                                supply=[2, 5, 0, 0, 0], demand=[0, 0, 0, 1, 2], lane_capacity=[NONE, NONE, NONE, 0])
+    d = diagnose_infeasible(assemble_instance(week), site_codes=["P", "Q", "W", "X", "C2"],
+                            lane_labels=["P->W road", "W->X road", "W->C2 road", "Q->X road"], period_codes=WEEK)
+    assert d.shortfall == 1 and d.limiting_arcs == [3] and d.exhausted_supply == [(0, 0, 2)]
+    assert "Limiting lanes (at capacity): Q->X road (cap 0)." in d.message
