@@ -166,8 +166,25 @@ def test_zero_components_distances_hand_week(engine):
     dist, reached, units = graph.distances([2, 3, 6, 0], [3, 2, 2, 6])
     assert dist.tolist() == [0, 0, 91, 0] and reached.all()
     # With a radius of 90 the 91 is out of reach.
-    dist, reached, _ = graph.distances([6, 2], [2, 3], radius=[90, 5])
+    dist, reached, units = graph.distances([6, 2], [2, 3], radius=[90, 5])
     assert reached.tolist() == [False, True] and dist.tolist() == [0, 0]
+    assert units[0] == 0  # nothing holds on a path that is not there
+
+
+@pytest.mark.parametrize("engine", ["compiled", "scipy"])
+def test_zero_components_distances_into_a_dead_end(engine):
+    # Plant P (5) -> customer C (3) on a lane of rate 1; P -> X (needs nothing) on an idle lane of
+    # rate 2. X has no residual arc out: it is a region of its own, entered from P's.
+    w = WeekData.from_arrays([0, 2, 2], [0, 0], [1, 2], [1, 2], supply=[5, 0, 0], demand=[0, 3, 0])
+    inst, flow, res, pi = solved(w)
+    assert flow[:2].tolist() == [3, 0]
+    graph = ZeroComponents(inst.n_nodes, res, res.weight + pi[res.tail] - pi[res.head], engine=engine)
+    dist, reached, units = graph.distances([0, 2, 1], [2, 0, 2])
+    # P -> X: the real distance is the lane's 2, so the reduced one is 2 + pi(P) - pi(X) (hand
+    # computed); nothing leaves X; C -> X goes back to P first (real -1 + 2 = 1).
+    assert reached.tolist() == [True, False, True]
+    assert dist.tolist() == [2 + pi[0] - pi[2], 0, 1 + pi[1] - pi[2]]
+    assert units.tolist() == [UNLIMITED, 0, 3]
 
 
 def test_values_ranges_and_distances_are_exact_integer_arrays():
