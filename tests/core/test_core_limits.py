@@ -318,8 +318,8 @@ def test_a_minimum_one_unit_below_its_capacity_can_still_be_raised():
 
 @pytest.mark.skipif(compiled_kernel() is None, reason="the compiled search kernel is not built")
 @pytest.mark.xfail(strict=True, reason="possible defect: the compiled kernel and the scipy path break ties between "
-                   "shortest paths differently, so the capacity bound of a distance differs (see "
-                   "tools/mutation_survivors.md)")
+                   "shortest paths differently, so the capacity bound of a distance differs (both "
+                   "are documented lower bounds; found by mutation testing)")
 def test_both_search_engines_give_the_same_capacity_bound_on_tied_paths():
     # Plant 0 (1 unit) -> customers 2..5 on free lanes; customer 5 has a shortage penalty of 0. Every
     # residual arc has length 0. From SPARE (6) two paths reach customer 5 at distance 0: back to the
