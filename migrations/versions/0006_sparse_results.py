@@ -123,11 +123,14 @@ LANE_FLOW = (
     )
 )
 
+# The previous week's price is one primary-key probe per row: its week code is
+# only known at run time, and a join on it would read every week's partition.
 SITE_PRICE_HISTORY = """
 SELECT p.code AS period, p.starts_on, s.code AS site, sv.kind, sv.name, sv.region,
        r.price, r.price_low, r.price_high,
        (r.price_low IS DISTINCT FROM r.price_high) AS degenerate,
-       r.price - prior.price AS price_change,
+       r.price - (SELECT prior.price FROM run_site_price prior WHERE prior.run_id = rp.previous_run_id
+                  AND prior.period = previous.code AND prior.site_id = r.site_id) AS price_change,
        rp.run_id,
        sv.x, sv.y
 FROM run_period rp
@@ -136,8 +139,6 @@ JOIN run_site_price r ON r.run_id = rp.run_id AND r.period = p.code
 JOIN site s ON s.id = r.site_id
 LEFT JOIN site_version sv ON sv.batch_id = rp.batch_id AND sv.site_id = r.site_id
 LEFT JOIN period previous ON previous.id = rp.previous_period_id
-LEFT JOIN run_site_price prior ON prior.run_id = rp.previous_run_id
-     AND prior.period = previous.code AND prior.site_id = r.site_id
 """
 
 SHORTAGE = """

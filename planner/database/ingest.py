@@ -953,11 +953,13 @@ def load_folder(engine: sa.Engine, folder: str | Path) -> LoadResult:
                 f"the database refused the rows of {path} ({error}); nothing was loaded"
             ) from error
     # Fresh statistics, so that the solve that usually follows a load (cron)
-    # plans its snapshot reads on the new row counts, whatever autovacuum does;
+    # plans its snapshot reads on the new row counts, whatever autovacuum does
+    # (which never analyses a table as small as period: without statistics the
+    # reports' week comparisons were planned as nested loops, 10 s at 10,000 sites);
     # and the new weeks' result partitions, outside the load's transaction
     # (creating one locks its parent table; a store creates any still missing).
     with engine.begin() as connection:
-        connection.execute(sa.text("ANALYZE site, site_version, period_snapshot, supply, demand, lane, lane_rate"))
+        connection.execute(sa.text("ANALYZE period, site, site_version, period_snapshot, supply, demand, lane, lane_rate"))
         ensure_partitions(connection, validated.periods)
     rows = {name: digest.rows for name, digest in validated.files.items()}
     counts = ", ".join(f"{name} {count:,}" for name, count in rows.items())
