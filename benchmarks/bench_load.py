@@ -1,135 +1,171 @@
-"""Time ``load_folder`` on one large week of invented data.
+"""``planner load`` of the 500,000-lane benchmark week against a raw COPY of the same files.
 
-The week has 300 plants, 700 warehouses, 50,000 customers and 500,000 lanes
-(200,000 plant -> warehouse, 300,000 warehouse -> customer, six warehouses per
-customer). Site codes are invented (P0001, W0001, C00001). The script creates a
-scratch database on the server named by ``--url`` (default: ``PLANNER_DATABASE_URL``
-or the embedded server), migrates it, times a first load (all sites and lanes new)
-and a second load of the same sites and lanes with changed rates, and drops the
-database again.
+The floor: the four CSV files copied as they are (``COPY ... FROM STDIN WITH
+(FORMAT csv, HEADER)``) into plain logged tables with the column types the
+planner stores (text codes, numeric figures, double coordinates), in one
+transaction, measured in the same run. Against it, the whole ``planner load``
+process (start-up, reading, every validation, the load's one transaction,
+statistics), three times each:
 
-Run::
+1. a first load into an empty database (every site and lane new),
+2. a reload of the same files (a no-op: the same content),
+3. a load of the same network with changed rates and volumes (a new batch).
 
-    PYTHONPATH=. /work/venv/bin/python benchmarks/bench_load.py --url postgresql://postgres@127.0.0.1:5432/postgres
+It prints each time, its ratio to the raw COPY (target: within 5 x) and the
+peak resident memory of each ``planner load`` process (target: under 1 GiB),
+and the machine's load average.
+
+    python benchmarks/bench_load.py [--database-url URL] [--lanes 500000] [--profile DIR]
+
+``--profile DIR`` also records a py-spy flame graph of the first load (py-spy
+must be installed). The benchmark creates and drops its own database beside
+the one the URL names.
 """
 
 from __future__ import annotations
 
 import argparse
 import os
+import shutil
+import statistics
+import subprocess
+import sys
 import tempfile
 import time
 from pathlib import Path
 
-import numpy as np
-import pandas as pd
 import psycopg
+import sqlalchemy as sa
 from psycopg import sql
-from sqlalchemy.engine import make_url
 
-from planner.database.connect import database_url, get_engine, masked_url
-from planner.database.ingest import load_folder
-from planner.database.migrate import migrate
+from planner.contract import FILE_ORDER, LANES
+from planner.database import connect as db
+from planner.synthetic.benchmark_network import benchmark_network
+from planner.synthetic.frames import write_folder
 
-PLANTS, WAREHOUSES, CUSTOMERS = 300, 700, 50_000
-PLANT_LANES, LANES_PER_CUSTOMER = 200_000, 6
-WEEK = "2026-W40"
+BENCH_DATABASE = "planner_bench_load"
+
+#: Plain tables of the same column types as the planner's, one per file.
+RAW_TABLES = {
+    "sites.csv": "site text, kind text, name text, region text, throughput_capacity numeric, handling_cost numeric, "
+                 "holding_cost numeric, storage_capacity numeric, x double precision, y double precision",
+    "supply.csv": "period text, site text, quantity numeric",
+    "demand.csv": "period text, site text, quantity numeric, shortage_penalty numeric",
+    "lanes.csv": "period text, origin text, destination text, mode text, unit_cost numeric, capacity numeric, "
+                 "min_quantity numeric",
+}
 
 
-def write_week(folder: Path, rate_seed: int) -> int:
-    """Write a random but valid load folder; return its number of lanes.
+def raw_copy(url: str, folder: Path) -> float:
+    """Seconds to COPY the four files into fresh plain tables, in one transaction."""
+    with psycopg.connect(url) as conn:
+        start = time.perf_counter()
+        for name in FILE_ORDER:
+            table = sql.Identifier("raw_" + name.removesuffix(".csv"))
+            conn.execute(sql.SQL("DROP TABLE IF EXISTS {}").format(table))
+            conn.execute(sql.SQL("CREATE TABLE {} ({})").format(table, sql.SQL(RAW_TABLES[name])))
+            header = (folder / name).open("rb").readline().decode().strip()
+            columns = sql.SQL(", ").join(sql.Identifier(c) for c in header.split(","))
+            with conn.cursor().copy(
+                sql.SQL("COPY {} ({}) FROM STDIN WITH (FORMAT csv, HEADER true)").format(table, columns)
+            ) as copy, (folder / name).open("rb") as f:
+                while data := f.read(1 << 20):
+                    copy.write(data)
+        conn.commit()
+        return time.perf_counter() - start
 
-    The sites and lanes are always the same; quantities and rates depend on ``rate_seed``.
-    """
-    structure = np.random.default_rng(0)
-    rng = np.random.default_rng(rate_seed)
-    plants = np.char.add("P", np.char.zfill(np.arange(1, PLANTS + 1).astype(str), 4))
-    warehouses = np.char.add("W", np.char.zfill(np.arange(1, WAREHOUSES + 1).astype(str), 4))
-    customers = np.char.add("C", np.char.zfill(np.arange(1, CUSTOMERS + 1).astype(str), 5))
 
-    kinds = ["plant"] * PLANTS + ["warehouse"] * WAREHOUSES + ["customer"] * CUSTOMERS
-    codes = np.concatenate([plants, warehouses, customers])
-    regions = structure.choice(["north", "south"], len(codes))
-    sites = pd.DataFrame({"site": codes, "kind": kinds, "region": regions})
-    throughput = np.full(len(codes), "", dtype=object)
-    throughput[PLANTS : PLANTS + WAREHOUSES] = structure.integers(5_000, 50_000, WAREHOUSES).astype(
-        str
-    )
-    sites["throughput_capacity"] = throughput
-    sites.to_csv(folder / "sites.csv", index=False)
+def planner_load(url: str, folder: Path, profile: Path | None = None) -> tuple[float, float, str]:
+    """Seconds and peak memory (MiB) of a whole ``planner load`` process, and its last output line."""
+    command = [sys.executable, "-m", "planner.cli", "load", str(folder)]
+    if profile is not None:
+        command = ["py-spy", "record", "--rate", "200", "--format", "speedscope", "-o", str(profile), "--", *command]
+    env = dict(os.environ, PLANNER_DATABASE_URL=url)
+    wrapper = [sys.executable, "-c", TIMED, *command]
+    done = subprocess.run(wrapper, env=env, capture_output=True, text=True, check=False)
+    if done.returncode != 0:
+        raise SystemExit(f"planner load failed:\n{done.stdout}\n{done.stderr}")
+    *output, seconds, peak = done.stdout.strip().splitlines()
+    return float(seconds), float(peak), output[-1] if output else ""
 
-    pd.DataFrame(
-        {"period": WEEK, "site": plants, "quantity": rng.integers(5_000, 20_000, PLANTS)}
-    ).to_csv(folder / "supply.csv", index=False)
-    pd.DataFrame(
-        {
-            "period": WEEK,
-            "site": customers,
-            "quantity": rng.integers(1, 60, CUSTOMERS),
-            "shortage_penalty": (rng.integers(5_000, 9_000, CUSTOMERS) / 100).round(2),
-        }
-    ).to_csv(folder / "demand.csv", index=False)
 
-    # Distinct plant -> warehouse pairs: a sample of the flattened pair grid.
-    pairs = structure.permutation(PLANTS * WAREHOUSES)[:PLANT_LANES]
-    plant_lanes = pd.DataFrame(
-        {"origin": plants[pairs // WAREHOUSES], "destination": warehouses[pairs % WAREHOUSES]}
-    )
-    # Six distinct warehouses per customer: a random start plus fixed strides below 700.
-    start = structure.integers(0, WAREHOUSES, CUSTOMERS)
-    picks = (start[:, None] + np.arange(LANES_PER_CUSTOMER) * 117) % WAREHOUSES
-    customer_lanes = pd.DataFrame(
-        {
-            "origin": warehouses[picks.ravel()],
-            "destination": np.repeat(customers, LANES_PER_CUSTOMER),
-        }
-    )
-    lanes = pd.concat([plant_lanes, customer_lanes], ignore_index=True)
-    lanes.insert(0, "period", WEEK)
-    lanes["mode"] = "road"
-    lanes["unit_cost"] = (rng.integers(10, 5_000, len(lanes)) / 100).round(2)
-    capacity = rng.integers(100, 2_000, len(lanes)).astype(str)
-    capacity[rng.random(len(lanes)) < 0.5] = ""
-    lanes["capacity"] = capacity
-    lanes["min_quantity"] = ""
-    lanes.to_csv(folder / "lanes.csv", index=False)
-    return len(lanes)
+# Runs a command; prints its output, then its wall seconds and the peak resident
+# memory of its process tree in MiB (ru_maxrss of the children, in KiB on Linux).
+TIMED = """
+import resource, subprocess, sys, time
+start = time.perf_counter()
+done = subprocess.run(sys.argv[1:], capture_output=True, text=True)
+seconds = time.perf_counter() - start
+sys.stdout.write(done.stdout)
+sys.stderr.write(done.stderr)
+print(seconds)
+print(resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024)
+sys.exit(done.returncode)
+"""
 
 
 def main() -> None:
-    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument(
-        "--url", help="server to use (any database on it); default PLANNER_DATABASE_URL or embedded"
-    )
-    arguments = parser.parse_args()
+    parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
+    parser.add_argument("--database-url", default=None)
+    parser.add_argument("--lanes", type=int, default=500_000)
+    parser.add_argument("--repeat", type=int, default=3)
+    parser.add_argument("--profile", type=Path, default=None, help="folder for a py-spy profile of the first load")
+    args = parser.parse_args()
 
-    server = make_url(database_url(arguments.url))
-    scratch = f"planner_bench_{os.getpid()}"
-    admin = server.set(drivername="postgresql").render_as_string(hide_password=False)
-    with psycopg.connect(admin, autocommit=True) as connection:
-        connection.execute(sql.SQL("CREATE DATABASE {}").format(sql.Identifier(scratch)))
-    engine = get_engine(server.set(database=scratch).render_as_string(hide_password=False))
-    print(f"server {masked_url(server)}, scratch database {scratch}")
+    server = sa.make_url(db.database_url(args.database_url))
+    admin_url = server.set(drivername="postgresql").render_as_string(hide_password=False)
+    bench_url = server.set(drivername="postgresql", database=BENCH_DATABASE).render_as_string(hide_password=False)
+
+    def fresh_database() -> None:
+        with psycopg.connect(admin_url, autocommit=True) as admin:
+            admin.execute(sql.SQL("DROP DATABASE IF EXISTS {} WITH (FORCE)").format(sql.Identifier(BENCH_DATABASE)))
+            admin.execute(sql.SQL("CREATE DATABASE {}").format(sql.Identifier(BENCH_DATABASE)))
+
+    work = Path(tempfile.mkdtemp(prefix="bench_load_"))
     try:
-        migrate(engine)
-        with tempfile.TemporaryDirectory() as first, tempfile.TemporaryDirectory() as second:
-            lane_count = write_week(Path(first), rate_seed=1)
-            write_week(Path(second), rate_seed=2)
-            runs = (
-                ("first load (new sites and lanes)", first),
-                ("second load (new rates)", second),
-            )
-            for label, folder in runs:
-                started = time.perf_counter()
-                result = load_folder(engine, folder)
-                seconds = time.perf_counter() - started
-                print(f"{label}: {seconds:.1f} s for {lane_count:,} lanes -- {result.message}")
+        first = write_folder(benchmark_network(n_lanes=args.lanes, seed=1), work / "first")
+        same = write_folder(benchmark_network(n_lanes=args.lanes, seed=1), work / "same")
+        drifted = benchmark_network(n_lanes=args.lanes, seed=1)
+        drifted.lanes["unit_cost"] = (drifted.lanes["unit_cost"] * 1.03).round(2)
+        drifted.demand["quantity"] = drifted.demand["quantity"] + 1
+        drifted_folder = write_folder(drifted, work / "drifted")
+        sizes = ", ".join(f"{name} {(first / name).stat().st_size / 2**20:.0f} MiB" for name in FILE_ORDER)
+        lanes = sum(1 for _ in (first / LANES).open()) - 1
+        print(f"{lanes:,} lanes; files: {sizes}; load average {os.getloadavg()[0]:.2f}", flush=True)
+
+        results: dict[str, list[float]] = {"raw COPY": [], "first load": [], "reload (no-op)": [],
+                                           "load with changed rates": []}
+        peaks: dict[str, float] = {}
+        last_lines: dict[str, str] = {}
+        for attempt in range(args.repeat):
+            fresh_database()
+            with psycopg.connect(bench_url, autocommit=True) as conn:
+                conn.execute("SELECT 1")
+            results["raw COPY"].append(raw_copy(bench_url, first))
+            fresh_database()
+            db_init = subprocess.run([sys.executable, "-m", "planner.cli", "init"], capture_output=True, text=True,
+                                     env=dict(os.environ, PLANNER_DATABASE_URL=bench_url), check=False)
+            assert db_init.returncode == 0, db_init.stderr
+            profile = args.profile / "load.speedscope.json" if args.profile and attempt == 0 else None
+            for label, folder in (("first load", first), ("reload (no-op)", same),
+                                  ("load with changed rates", drifted_folder)):
+                seconds, peak, line = planner_load(bench_url, folder, profile if label == "first load" else None)
+                results[label].append(seconds)
+                peaks[label] = max(peaks.get(label, 0.0), peak)
+                last_lines[label] = line
+        floor = statistics.median(results["raw COPY"])
+        print(f"{'':28s} {'median':>9s} {'x raw COPY':>11s} {'peak MiB':>9s}")
+        for label, times in results.items():
+            median = statistics.median(times)
+            peak = f"{peaks[label]:9.0f}" if label in peaks else f"{'':9s}"
+            print(f"{label:28s} {median:8.2f}s {median / floor:10.1f}x {peak}")
+        for label, line in last_lines.items():
+            print(f"{label}: {line[:160]}")
+        print(f"load average {os.getloadavg()[0]:.2f}")
     finally:
-        engine.dispose()
-        with psycopg.connect(admin, autocommit=True) as connection:
-            connection.execute(
-                sql.SQL("DROP DATABASE {} WITH (FORCE)").format(sql.Identifier(scratch))
-            )
+        shutil.rmtree(work, ignore_errors=True)
+        with psycopg.connect(admin_url, autocommit=True) as admin:
+            admin.execute(sql.SQL("DROP DATABASE IF EXISTS {} WITH (FORCE)").format(sql.Identifier(BENCH_DATABASE)))
 
 
 if __name__ == "__main__":

@@ -174,7 +174,7 @@ def test_constraint_names_follow_the_convention(engine: sa.Engine) -> None:
         "ck_lane_rate_min_quantity_within_capacity",
         "ck_period_code_format",
         "uq_lane_origin_id_destination_id_mode",
-        "fk_lane_rate_period_id_batch_id_period_snapshot",
+        "fk_period_snapshot_period_id_period",
         "ck_run_stock_stock_nonnegative",
     } <= names
     names.discard("alembic_version_pkc")
@@ -289,9 +289,15 @@ BAD_ROWS = [
         "ck_period_seven_days",
     ),
     (
-        "INSERT INTO supply VALUES (:batch + 1, :period, :plant, 5)",
-        "fk_supply_period_id_batch_id_period_snapshot",
+        "INSERT INTO period_snapshot VALUES (:period, :batch + 1, 'f')",
+        "fk_period_snapshot_batch_id_load_batch",
     ),
+    # The inputs' parents are append-only (their children have no per-row foreign-key checks).
+    ("DELETE FROM site WHERE id = :plant", "table site is append-only"),
+    ("UPDATE lane SET mode = 'rail' WHERE id = :lane", "table lane is append-only"),
+    ("DELETE FROM period_snapshot", "table period_snapshot is append-only"),
+    ("TRUNCATE load_batch CASCADE", "table load_batch is append-only"),
+    ("UPDATE period SET code = '2026-W41'", "table period is append-only"),
     (
         "INSERT INTO lane_rate (batch_id, period_id, lane_id, unit_cost, capacity, min_quantity) "
         "VALUES (:batch, :period, :lane, 1, 2, 5)",

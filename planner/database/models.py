@@ -114,10 +114,10 @@ class SiteVersion(Base):
         sa.CheckConstraint("storage_capacity >= 0", name="storage_capacity_nonnegative"),
     )
 
-    batch_id: Mapped[int] = mapped_column(
-        sa.BigInteger, sa.ForeignKey("load_batch.id"), primary_key=True
-    )
-    site_id: Mapped[int] = mapped_column(sa.ForeignKey("site.id"), primary_key=True)
+    # No foreign keys on the bulk input tables (migration 0006): the loader joins
+    # every row to its parents, and the parents are append-only.
+    batch_id: Mapped[int] = mapped_column(sa.BigInteger, primary_key=True)
+    site_id: Mapped[int] = mapped_column(primary_key=True)
     kind: Mapped[str] = mapped_column(sa.Text)
     name: Mapped[str | None] = mapped_column(sa.Text)
     region: Mapped[str | None] = mapped_column(sa.Text)
@@ -160,16 +160,11 @@ class Supply(Base):
     """What a plant can ship in a period (an upper bound)."""
 
     __tablename__ = "supply"
-    __table_args__ = (
-        sa.ForeignKeyConstraint(
-            ["period_id", "batch_id"], ["period_snapshot.period_id", "period_snapshot.batch_id"]
-        ),
-        sa.CheckConstraint("quantity >= 0", name="quantity_nonnegative"),
-    )
+    __table_args__ = (sa.CheckConstraint("quantity >= 0", name="quantity_nonnegative"),)
 
     batch_id: Mapped[int] = mapped_column(sa.BigInteger, primary_key=True)
     period_id: Mapped[int] = mapped_column(primary_key=True)
-    site_id: Mapped[int] = mapped_column(sa.ForeignKey("site.id"), primary_key=True)
+    site_id: Mapped[int] = mapped_column(primary_key=True)
     quantity: Mapped[Decimal]
 
 
@@ -178,16 +173,13 @@ class Demand(Base):
 
     __tablename__ = "demand"
     __table_args__ = (
-        sa.ForeignKeyConstraint(
-            ["period_id", "batch_id"], ["period_snapshot.period_id", "period_snapshot.batch_id"]
-        ),
         sa.CheckConstraint("quantity >= 0", name="quantity_nonnegative"),
         sa.CheckConstraint("shortage_penalty >= 0", name="shortage_penalty_nonnegative"),
     )
 
     batch_id: Mapped[int] = mapped_column(sa.BigInteger, primary_key=True)
     period_id: Mapped[int] = mapped_column(primary_key=True)
-    site_id: Mapped[int] = mapped_column(sa.ForeignKey("site.id"), primary_key=True)
+    site_id: Mapped[int] = mapped_column(primary_key=True)
     quantity: Mapped[Decimal]
     shortage_penalty: Mapped[Decimal | None]
 
@@ -202,8 +194,8 @@ class Lane(Base):
     )
 
     id: Mapped[int] = mapped_column(primary_key=True)
-    origin_id: Mapped[int] = mapped_column(sa.ForeignKey("site.id"))
-    destination_id: Mapped[int] = mapped_column(sa.ForeignKey("site.id"))
+    origin_id: Mapped[int]
+    destination_id: Mapped[int]
     mode: Mapped[str] = mapped_column(sa.Text, server_default=sa.text("''"))
 
 
@@ -212,9 +204,6 @@ class LaneRate(Base):
 
     __tablename__ = "lane_rate"
     __table_args__ = (
-        sa.ForeignKeyConstraint(
-            ["period_id", "batch_id"], ["period_snapshot.period_id", "period_snapshot.batch_id"]
-        ),
         sa.CheckConstraint("capacity >= 0", name="capacity_nonnegative"),
         sa.CheckConstraint("min_quantity >= 0", name="min_quantity_nonnegative"),
         sa.CheckConstraint(
@@ -224,7 +213,7 @@ class LaneRate(Base):
 
     batch_id: Mapped[int] = mapped_column(sa.BigInteger, primary_key=True)
     period_id: Mapped[int] = mapped_column(primary_key=True)
-    lane_id: Mapped[int] = mapped_column(sa.ForeignKey("lane.id"), primary_key=True)
+    lane_id: Mapped[int] = mapped_column(primary_key=True)
     unit_cost: Mapped[Decimal]
     #: None means unlimited.
     capacity: Mapped[Decimal | None]
