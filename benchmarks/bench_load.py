@@ -43,6 +43,9 @@ from planner.database import connect as db
 from planner.synthetic.benchmark_network import benchmark_network
 from planner.synthetic.frames import write_folder
 
+sys.path.insert(0, str(Path(__file__).parent))
+from process_timing import run_planner  # noqa: E402
+
 BENCH_DATABASE = "planner_bench_load"
 
 #: Plain tables of the same column types as the planner's, one per file.
@@ -77,31 +80,11 @@ def raw_copy(url: str, folder: Path) -> float:
 
 def planner_load(url: str, folder: Path, profile: Path | None = None) -> tuple[float, float, str]:
     """Seconds and peak memory (MiB) of a whole ``planner load`` process, and its last output line."""
-    command = [sys.executable, "-m", "planner.cli", "load", str(folder)]
+    wrap = None
     if profile is not None:
-        command = ["py-spy", "record", "--rate", "200", "--format", "speedscope", "-o", str(profile), "--", *command]
-    env = dict(os.environ, PLANNER_DATABASE_URL=url)
-    wrapper = [sys.executable, "-c", TIMED, *command]
-    done = subprocess.run(wrapper, env=env, capture_output=True, text=True, check=False)
-    if done.returncode != 0:
-        raise SystemExit(f"planner load failed:\n{done.stdout}\n{done.stderr}")
-    *output, seconds, peak = done.stdout.strip().splitlines()
-    return float(seconds), float(peak), output[-1] if output else ""
-
-
-# Runs a command; prints its output, then its wall seconds and the peak resident
-# memory of its process tree in MiB (ru_maxrss of the children, in KiB on Linux).
-TIMED = """
-import resource, subprocess, sys, time
-start = time.perf_counter()
-done = subprocess.run(sys.argv[1:], capture_output=True, text=True)
-seconds = time.perf_counter() - start
-sys.stdout.write(done.stdout)
-sys.stderr.write(done.stderr)
-print(seconds)
-print(resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024)
-sys.exit(done.returncode)
-"""
+        wrap = ["py-spy", "record", "--rate", "200", "--format", "speedscope", "-o", str(profile), "--"]
+    seconds, peak, output = run_planner(url, "load", str(folder), wrap=wrap)
+    return seconds, peak, output[-1] if output else ""
 
 
 def main() -> None:
