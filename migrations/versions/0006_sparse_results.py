@@ -386,6 +386,9 @@ def _partitioned_tables() -> None:
         **by_period,
     )
     _result_table("run_site_price", period(), *_site_price_columns(dense=False), key=("site_id",), **by_period)
+    # One site over every week (a customer's price history) probes each week's
+    # partition instead of reading them all.
+    op.create_index("ix_run_site_price_site_id", "run_site_price", ["site_id"])
     _result_table(
         "run_stock", period(),
         sa.Column("site_id", sa.Integer(), nullable=False),

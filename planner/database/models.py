@@ -286,7 +286,7 @@ class RunSitePrice(Base):
     """Shadow price of a site in one period of a run, with its valid range."""
 
     __tablename__ = "run_site_price"
-    __table_args__ = (_BY_PERIOD,)
+    __table_args__ = (sa.Index("ix_run_site_price_site_id", "site_id"), _BY_PERIOD)
 
     run_id: Mapped[int] = mapped_column(sa.BigInteger, primary_key=True)
     period: Mapped[str] = mapped_column(sa.Text, primary_key=True)
