@@ -26,6 +26,7 @@ from typer.testing import CliRunner
 
 from planner.cli import app
 from planner.database.connect import DATABASE_URL_ENV
+from planner.database.migrate import head_revision
 from planner.runs.demo import price_movers
 
 runner = CliRunner()
@@ -71,7 +72,8 @@ def test_init_creates_the_schema_on_an_empty_database_and_is_idempotent(test_ser
     try:
         first = invoke("init", "--database-url", target)
         assert first.exit_code == 0, first.output
-        assert "schema is up to date on" in first.stdout and name in first.stdout
+        assert f"created the schema (revision {head_revision()}) on postgresql://" in first.stdout
+        assert name in first.stdout
         with psycopg.connect(target_url.set(drivername="postgresql").render_as_string(hide_password=False)) as conn:
             tables = {r[0] for r in conn.execute("SELECT tablename FROM pg_tables WHERE schemaname = 'public'")}
             views = {r[0] for r in conn.execute("SELECT viewname FROM pg_views WHERE schemaname = 'public'")}
@@ -79,6 +81,7 @@ def test_init_creates_the_schema_on_an_empty_database_and_is_idempotent(test_ser
         assert "site_price_history" in views
         again = invoke("init", "--database-url", target)
         assert again.exit_code == 0, again.output
+        assert f"schema already up to date (revision {head_revision()})" in again.stdout
     finally:
         with psycopg.connect(admin, autocommit=True) as conn:
             conn.execute(sql.SQL("DROP DATABASE IF EXISTS {} WITH (FORCE)").format(sql.Identifier(name)))
@@ -146,13 +149,20 @@ def test_solve_one_period_prints_the_run_table(engine, write_folder, network_fil
 
 @pytest.mark.parametrize(
     "options",
-    [pytest.param([], id="no-selection"), pytest.param(["--period", "2026-W40", "--all"], id="two-selections")],
+    [
+        pytest.param([], id="no-selection"),
+        pytest.param(["--period", "2026-W40", "--all"], id="two-selections"),
+        pytest.param(["--period", "2026-W40", "--horizon", "2026-W40..2026-W41"], id="week-and-horizon"),
+    ],
 )
 def test_solve_without_exactly_one_period_selection_is_a_usage_error(engine, write_folder, network_files, options):
     assert invoke("load", str(write_folder(network_files))).exit_code == 0
     result = invoke("solve", *options)
     assert result.exit_code == 2
-    assert "choose exactly one of --period P, --all, or --from A/--to B" in result.stderr
+    assert (
+        "choose exactly one of --period WEEK, --all, --from WEEK/--to WEEK, or --horizon FIRST..LAST"
+        in result.stderr
+    )
     assert table_counts(engine, ("solve_run",)) == {"solve_run": 0}
 
 
@@ -175,7 +185,8 @@ def test_certificate_of_a_period_shows_exact(engine, write_folder, network_files
     assert Decimal(lines["difference"]) == 0
     assert lines["max conservation violation (units)"] == "0"
     missing = invoke("certificate", "--period", "2026-W40")
-    assert missing.exit_code == 2 and "no such run" in missing.stderr
+    assert missing.exit_code == 2
+    assert "2026-W40 is loaded but not solved yet; solve it with `planner solve --period 2026-W40`" in missing.stderr
 
 
 def test_periods_lists_loaded_weeks_and_their_latest_run(engine, write_folder, network_files):
@@ -293,10 +304,12 @@ def test_demo_solves_every_week_prints_costs_movers_and_a_psql_line_without_pass
     mover_lines = [line for line in lines if re.search(r"│\s*(C|W|P)\d+\s*│", line)]
     assert [re.search(r"│\s*(\S+)", line).group(1) for line in mover_lines] == [m["site"] for m in movers]
 
-    psql = next(line.strip() for line in lines if line.strip().startswith("psql "))
+    # The last lines advise what works after the command has ended.
+    assert any("planner sql" in line for line in lines)
+    psql = next(line.strip() for line in lines if "psql '" in line)
     server = make_url(database_url)
-    assert psql.startswith("psql 'postgresql://postgres")
-    assert psql.endswith(f"@{server.host}:{server.port}/{server.database}'")
+    assert psql.endswith(f"psql 'postgresql://postgres@{server.host}:{server.port}/{server.database}'")
+    assert "planner server start" not in result.stdout  # not the embedded server: nothing to keep up
 
 
 def test_demo_flows_reproduce_the_stored_cost_exactly_in_sql(engine, tmp_path):
