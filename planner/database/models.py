@@ -39,6 +39,7 @@ __all__ = [
     "RunLimit",
     "RunSitePrice",
     "Site",
+    "Setting",
     "SiteVersion",
     "SolveRun",
     "Supply",
@@ -346,6 +347,17 @@ class RunLimit(Base):
     tighten_blocked: Mapped[str | None] = mapped_column(sa.Text)
     rate_low: Mapped[Decimal | None]
     rate_high: Mapped[Decimal | None]
+
+
+class Setting(Base):
+    """A setting kept once per database (migration 0006): ``currency``, an ISO 4217 code."""
+
+    __tablename__ = "setting"
+    __table_args__ = (sa.CheckConstraint("name <> 'currency' OR value ~ '^[A-Z]{3}$'", name="currency_code"),)
+
+    name: Mapped[str] = mapped_column(sa.Text, primary_key=True)
+    value: Mapped[str] = mapped_column(sa.Text)
+    changed_at: Mapped[datetime.datetime] = mapped_column(server_default=sa.func.now())
 
 
 #: The ``site_price_history`` view (created by migration 0001) for Core queries; it is
