@@ -112,31 +112,42 @@ UNION ALL
 SELECT {weeks + OLDER_RUN_WEEKS} + k, 'week', 1 + k % {weeks}, 1 + k % {weeks}, 1 + k % {weeks}, 1,
        'x', 'infeasible', ts, ts + interval '1 s', 4, 0, 1.0, 2.0, NULL, NULL, NULL, NULL, NULL, NULL
 FROM generate_series(1, {FAILED_RUNS}) k, LATERAL (SELECT timestamptz '2026-07-01' + k * interval '1 h' AS ts) t"""),
+        ("partitions", "SELECT planner_result_partitions(code) FROM period ORDER BY id"),
         # About 15% of lanes carry flow, as in a solved week (a basic optimal flow uses
-        # few more lanes than there are sites); every 50th lane is at its capacity.
+        # few more lanes than there are sites); only those are stored. Every 50th lane
+        # is at its capacity, and so is every fourth warehouse: their limit rows.
         ("flows", """
-INSERT INTO run_flow (run_id, period_id, lane_id, flow, reduced_cost, capacity_value)
-SELECT r.id, r.period_id, l.id,
-       CASE WHEN l.id % 50 = 0 THEN 20 WHEN l.id % 7 = 0 THEN 7 ELSE 0 END,
-       CASE WHEN l.id % 50 = 0 THEN -((l.id * 13 + r.id) % 500) / 100.0
-            WHEN l.id % 7 = 0 THEN 0 ELSE (l.id % 250) / 100.0 END,
-       CASE WHEN l.id % 50 = 0 THEN ((l.id * 13 + r.id) % 500) / 100.0 END
-FROM solve_run r, lane l WHERE r.status = 'optimal'
+INSERT INTO run_flow (run_id, period, lane_id, flow)
+SELECT r.id, p.code, l.id, CASE WHEN l.id % 50 = 0 THEN 20 ELSE 7 END
+FROM solve_run r JOIN period p ON p.id = r.period_id, lane l
+WHERE r.status = 'optimal' AND (l.id % 50 = 0 OR l.id % 7 = 0)
 ORDER BY r.id, l.id"""),
         ("prices", f"""
-INSERT INTO run_site_price (run_id, period_id, site_id, price, price_low, price_high,
-                            throughput_flow, throughput_value, shortage, spare)
-SELECT r.id, r.period_id, s.id, (s.id * 17 + r.id * 3) % 2000 / 100.0,
+INSERT INTO run_site_price (run_id, period, site_id, price, price_low, price_high,
+                            throughput_flow, shortage, spare, price_out)
+SELECT r.id, (SELECT code FROM period WHERE id = r.period_id), s.id, (s.id * 17 + r.id * 3) % 2000 / 100.0,
        (s.id * 17 + r.id * 3) % 2000 / 100.0 - CASE WHEN s.id % 10 = 0 THEN 1 ELSE 0 END,
        (s.id * 17 + r.id * 3) % 2000 / 100.0,
        CASE WHEN s.id > {PLANTS} AND s.id <= {PLANTS + WAREHOUSES} THEN
             CASE WHEN s.id % 4 = 0 THEN 5000 ELSE 3000 END END,
-       CASE WHEN s.id > {PLANTS} AND s.id <= {PLANTS + WAREHOUSES} THEN
-            CASE WHEN s.id % 4 = 0 THEN (s.id % 300) / 100.0 ELSE 0 END END,
        CASE WHEN s.id > {PLANTS + WAREHOUSES} THEN CASE WHEN s.id % 97 = 0 THEN 3 ELSE 0 END END,
-       CASE WHEN s.id <= {PLANTS} THEN 10 END
+       CASE WHEN s.id <= {PLANTS} THEN 10 END,
+       CASE WHEN s.id > {PLANTS} AND s.id <= {PLANTS + WAREHOUSES} THEN
+            (s.id * 17 + r.id * 3) % 2000 / 100.0 + 0.5 + CASE WHEN s.id % 4 = 0 THEN (s.id % 300) / 100.0 ELSE 0 END END
 FROM solve_run r, site s WHERE r.status = 'optimal'
 ORDER BY r.id, s.id"""),
+        ("limits", f"""
+INSERT INTO run_limit (run_id, period, limit_kind, ref_id, bound, flow, loosen_value, loosen_units,
+                       tighten_cost, tighten_units, rate_low, rate_high)
+SELECT r.id, (SELECT code FROM period WHERE id = r.period_id), 'lane_capacity', l.id, 20, 20, ((l.id * 13 + r.id) % 500) / 100.0, 5,
+       ((l.id * 13 + r.id) % 500) / 100.0 + 0.25, 3, '-Infinity'::numeric, 1 + (l.id * 31 + r.period_id) % 900 / 100.0
+FROM solve_run r, lane l WHERE r.status = 'optimal' AND l.id % 50 = 0
+UNION ALL
+SELECT r.id, (SELECT code FROM period WHERE id = r.period_id), 'throughput', s.id, 5000, 5000, (s.id % 300) / 100.0, 40,
+       (s.id % 300) / 100.0 + 0.5, 40, NULL, NULL
+FROM solve_run r, site s WHERE r.status = 'optimal' AND s.id > {PLANTS} AND s.id <= {PLANTS + WAREHOUSES}
+     AND s.id % 4 = 0
+ORDER BY 1, 4"""),
         ("statistics", "ANALYZE"),
     ]
 
@@ -227,8 +238,8 @@ def explain_ms(connection: psycopg.Connection, query: str, params: dict) -> tupl
 
 #: Plan checks: a query, the index it must use, and the tables it must not scan whole.
 PLAN_CHECKS = (
-    ("SELECT * FROM lane_flow WHERE period = %(week)s", "pk_run_flow", ("solve_run", "run_flow", "run_site_price")),
-    ("SELECT * FROM binding_capacity WHERE period = %(week)s", "pk_run_flow", ("solve_run", "run_flow")),
+    ("SELECT * FROM lane_flow WHERE period = %(week)s", "pk_run_flow", ("solve_run", "run_flow", "run_site_price", "lane_rate")),
+    ("SELECT * FROM binding_capacity WHERE period = %(week)s", "pk_run_limit", ("solve_run", "run_limit")),
     ("SELECT * FROM shortage WHERE period = %(week)s", "pk_run_site_price", ("solve_run", "run_site_price")),
     ("SELECT * FROM site_price_history WHERE site = 'C00017'", "pk_run_site_price", ("solve_run", "run_site_price")),
     ("SELECT * FROM run_summary", "ix_solve_run_period_id_status_finished_at", ("run_flow", "run_site_price")),
@@ -241,7 +252,8 @@ def check_plans(connection: psycopg.Connection, week: str) -> bool:
     good = True
     for query, index, not_scanned in PLAN_CHECKS:
         plan = "\n".join(row[0] for row in connection.execute(f"EXPLAIN {query}", {"week": week}).fetchall())
-        scanned = [t for t in not_scanned if re.search(rf"Seq Scan on {t}\b", plan)]
+        # A result table is scanned whole when any of its week partitions is.
+        scanned = [t for t in not_scanned if re.search(rf"Seq Scan on {t}(_\d{{4}}_w\d\d)?\b", plan)]
         ok = f"using {index}" in plan and not scanned
         good &= ok
         print(f"  {'ok  ' if ok else 'FAIL'} {query}: uses {index}" + (f"; scans {', '.join(scanned)} whole" if scanned else ""))

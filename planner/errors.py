@@ -12,7 +12,7 @@ from __future__ import annotations
 from collections.abc import Iterable
 from dataclasses import dataclass
 
-__all__ = ["DatabaseUnavailable", "NotOptimal", "PlannerError", "Problem", "ValidationError"]
+__all__ = ["DatabaseUnavailable", "LockTimeout", "NotOptimal", "PlannerError", "Problem", "ValidationError"]
 
 
 class PlannerError(Exception):
@@ -47,6 +47,34 @@ class NotOptimal(PlannerError):
     >>> str(NotOptimal("run 7 (2026-W50) ended infeasible: customer C17 cannot be served"))
     'run 7 (2026-W50) ended infeasible: customer C17 cannot be served'
     """
+
+
+class LockTimeout(PlannerError):
+    """Another session held a lock the planner needed for longer than the lock timeout.
+
+    Nothing that the lock guards was done; running the command again once the
+    other session is done is safe. The command line exits with code 4.
+
+    Parameters
+    ----------
+    message : str
+        What is locked, by whom, and what to do.
+    holder : str, optional
+        The session holding the lock, in words (pid, user, application).
+    seconds : float, optional
+        How long the planner waited.
+
+    Examples
+    --------
+    >>> err = LockTimeout("week 2026-W49: locked", holder="pid 4711", seconds=60.0)
+    >>> isinstance(err, PlannerError), err.holder, err.seconds
+    (True, 'pid 4711', 60.0)
+    """
+
+    def __init__(self, message: str, *, holder: str | None = None, seconds: float | None = None) -> None:
+        super().__init__(message)
+        self.holder = holder
+        self.seconds = seconds
 
 
 @dataclass(frozen=True)

@@ -3,7 +3,7 @@
 Every week here goes through the real command line: ``planner load`` of a CSV
 folder, then ``planner solve`` in a subprocess (so a stack trace would show in
 its stderr; follow-up solves run in-process with typer's CliRunner), and the
-stored ``solve_run``/``run_flow``/``run_site_price`` rows are read back with SQL.
+stored ``solve_run``/``run_site_price`` rows and the ``lane_flow`` view are read back with SQL.
 
 The week with lane minimums is checked against scipy's ``linprog`` with HiGHS
 (outside reference) on the model read straight from the CSV rows (``tests/reference_model.py``), without
@@ -130,12 +130,8 @@ def test_lane_minimums_and_modes_match_highs_with_an_exact_certificate(
     with engine.connect() as conn:
         flows = conn.execute(
             sa.text(
-                "SELECT o.code AS origin, d.code AS destination, l.mode, f.flow, f.reduced_cost, "
-                "lr.unit_cost, lr.capacity, lr.min_quantity FROM run_flow f "
-                "JOIN lane l ON l.id = f.lane_id JOIN site o ON o.id = l.origin_id "
-                "JOIN site d ON d.id = l.destination_id "
-                "JOIN lane_rate lr ON lr.lane_id = f.lane_id AND lr.period_id = f.period_id "
-                "WHERE f.run_id = :run"
+                "SELECT origin, destination, mode, flow, reduced_cost, unit_cost, capacity, min_quantity "
+                "FROM lane_flow_of_run(:run)"
             ),
             {"run": run["id"]},
         ).mappings().all()

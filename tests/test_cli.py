@@ -318,11 +318,11 @@ def test_demo_flows_reproduce_the_stored_cost_exactly_in_sql(engine, tmp_path):
         rows = conn.execute(
             text(
                 """
-                WITH runs AS (SELECT id, batch_id, primal_cost FROM solve_run WHERE status = 'optimal'),
+                WITH runs AS (SELECT id, batch_id, period_id, primal_cost FROM solve_run WHERE status = 'optimal'),
                 lanes AS (
                   SELECT f.run_id, sum(f.flow * lr.unit_cost) AS cost FROM run_flow f
                   JOIN runs r ON r.id = f.run_id
-                  JOIN lane_rate lr ON lr.batch_id = r.batch_id AND lr.period_id = f.period_id
+                  JOIN lane_rate lr ON lr.batch_id = r.batch_id AND lr.period_id = r.period_id
                                    AND lr.lane_id = f.lane_id
                   GROUP BY f.run_id),
                 handling AS (
@@ -333,7 +333,7 @@ def test_demo_flows_reproduce_the_stored_cost_exactly_in_sql(engine, tmp_path):
                 shortage AS (
                   SELECT p.run_id, sum(coalesce(p.shortage * d.shortage_penalty, 0)) AS cost
                   FROM run_site_price p JOIN runs r ON r.id = p.run_id
-                  LEFT JOIN demand d ON d.batch_id = r.batch_id AND d.period_id = p.period_id
+                  LEFT JOIN demand d ON d.batch_id = r.batch_id AND d.period_id = r.period_id
                                     AND d.site_id = p.site_id
                   GROUP BY p.run_id)
                 SELECT r.id, r.primal_cost, l.cost + h.cost + s.cost AS rebuilt,

@@ -43,6 +43,8 @@ TABLES = {
     "run_site_price",
     "run_stock",
     "run_limit",
+    "run_pin",
+    "planner_lock",
     "setting",
 }
 
@@ -145,7 +147,7 @@ def test_embedded_server_is_used_without_a_url(
 
 def test_fresh_database_is_at_head_with_every_table(engine: sa.Engine) -> None:
     with engine.connect() as connection:
-        assert current_revision(connection) == head_revision() == "0006"
+        assert current_revision(connection) == head_revision() == "0008"
         tables = set(sa.inspect(connection).get_table_names())
     assert tables == TABLES | {"alembic_version"}
 
@@ -202,6 +204,31 @@ def test_downgrade_then_migrate_again(engine: sa.Engine, database_url: str) -> N
     with engine.connect() as connection:
         assert current_revision(connection) == head_revision()
         assert TABLES.issubset(sa.inspect(connection).get_table_names())
+
+
+def test_lock_table_goes_with_a_downgrade_and_comes_back_with_no_right_for_the_reader(engine: sa.Engine) -> None:
+    def rights(connection: sa.Connection) -> dict[str, bool]:
+        return {
+            grantee: connection.execute(
+                sa.text(
+                    "SELECT has_table_privilege(:who, 'planner_lock', "
+                    "'SELECT, INSERT, UPDATE, DELETE, TRUNCATE, REFERENCES, TRIGGER')"
+                ),
+                {"who": grantee},
+            ).scalar_one()
+            for grantee in ("planner_reader", "public")
+        }
+
+    with engine.begin() as connection:
+        assert rights(connection) == {"planner_reader": False, "public": False}
+        connection.execute(sa.text("INSERT INTO planner_lock (name) VALUES ('load')"))
+        command.downgrade(alembic_config(connection), "0005")
+        assert current_revision(connection) == "0005"
+        assert "planner_lock" not in sa.inspect(connection).get_table_names()
+        command.upgrade(alembic_config(connection), "head")
+        assert current_revision(connection) == head_revision()
+        assert connection.execute(sa.text("SELECT count(*) FROM planner_lock")).scalar_one() == 0
+        assert rights(connection) == {"planner_reader": False, "public": False}
 
 
 def test_migrate_refuses_an_unknown_revision(engine: sa.Engine) -> None:

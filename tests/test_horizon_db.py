@@ -99,26 +99,23 @@ def test_horizon_with_stock_is_one_run_with_flows_stock_and_prices_per_week(
         period_id = dict(conn.execute(sa.text("SELECT code, id FROM period")).all())
         flows = conn.execute(
             sa.text(
-                "SELECT p.code AS week, o.code AS origin, d.code AS destination, f.flow, "
-                "lr.min_quantity, lr.capacity FROM run_flow f JOIN period p ON p.id = f.period_id "
-                "JOIN lane l ON l.id = f.lane_id JOIN site o ON o.id = l.origin_id "
-                "JOIN site d ON d.id = l.destination_id JOIN lane_rate lr "
-                "ON lr.lane_id = f.lane_id AND lr.period_id = f.period_id WHERE f.run_id = :r"
+                "SELECT period AS week, origin, destination, flow, min_quantity, capacity "
+                "FROM lane_flow_of_run(:r)"
             ),
             {"r": run["id"]},
         ).mappings().all()
         stock = conn.execute(
             sa.text(
-                "SELECT p.code AS week, s.code AS site, k.stock, k.holding_cost FROM run_stock k "
-                "JOIN period p ON p.id = k.period_id JOIN site s ON s.id = k.site_id "
+                "SELECT k.period AS week, s.code AS site, k.stock, k.holding_cost FROM run_stock k "
+                "JOIN site s ON s.id = k.site_id "
                 "WHERE k.run_id = :r"
             ),
             {"r": run["id"]},
         ).mappings().all()
         prices = conn.execute(
             sa.text(
-                "SELECT p.code AS week, s.code AS site, r.price, r.price_low, r.price_high, "
-                "r.shortage, r.spare FROM run_site_price r JOIN period p ON p.id = r.period_id "
+                "SELECT r.period AS week, s.code AS site, r.price, r.price_low, r.price_high, "
+                "r.shortage, r.spare FROM run_site_price r "
                 "JOIN site s ON s.id = r.site_id WHERE r.run_id = :r"
             ),
             {"r": run["id"]},
@@ -206,7 +203,7 @@ def test_horizon_without_storage_costs_the_sum_of_its_weeks(
         rows = conn.execute(sa.text("SELECT id, kind, primal_cost, certificate_ok FROM solve_run")).all()
         stock_rows = conn.execute(sa.text("SELECT count(*) FROM run_stock")).scalar_one()
         flow_rows = dict(
-            conn.execute(sa.text("SELECT run_id, count(*) FROM run_flow GROUP BY run_id")).all()
+            conn.execute(sa.text("SELECT run_id, count(*) FROM lane_flow_by_run GROUP BY run_id")).all()
         )
     (horizon_run,) = [r for r in rows if r.kind == "horizon"]
     week_runs = [r for r in rows if r.kind == "week"]

@@ -92,11 +92,26 @@ def test_nothing_to_copy_sends_nothing(engine):
         assert conn.execute(sa.text("SELECT count(*) FROM e")).scalar_one() == 0
 
 
+def test_binary_text_equals_the_text_copied_with_nulls(engine):
+    codes = np.array([b"2026-W08", b"2027-W01", b"2026-W53"])
+    with engine.begin() as conn:
+        conn.execute(sa.text("CREATE TEMP TABLE t (i int4, code text)"))
+        with conn.connection.driver_connection.cursor() as cur:
+            copy_binary(cur, "t", ["i", "code"], [
+                Column("int4", np.arange(3)), Column("text", codes, present=np.array([True, False, True])),
+            ])
+        rows = conn.execute(sa.text("SELECT i, code FROM t ORDER BY i")).all()
+    assert rows == [(0, "2026-W08"), (1, None), (2, "2026-W53")]
+
+
 def test_column_rejects_unknown_kinds_and_decimals():
     with pytest.raises(ValueError):
         Column("float8", np.zeros(1))
     with pytest.raises(ValueError):
         Column("numeric", np.zeros(1, dtype=np.int64), decimals=13)
+    # Text fields are one width (a shorter one would be sent with padding bytes).
+    with pytest.raises(ValueError, match="one width"):
+        Column("text", np.array([b"2026-W08", b"W1"]))
     # An id past 32 bits must not wrap around silently.
     with pytest.raises(ValueError, match="32-bit"):
         pgbinary.encode_rows([Column("int4", np.array([2**31]))])

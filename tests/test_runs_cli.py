@@ -10,6 +10,7 @@ whose unit cost has more decimals than the precision asked for (run 5, failed).
 from __future__ import annotations
 
 import json
+
 import pytest
 import sqlalchemy as sa
 

@@ -6,7 +6,8 @@ processes run in-process with typer's CliRunner), then counts the stored runs
 with SQL. The
 concurrency test starts two ``planner resolve`` processes at the same moment
 on the same PostgreSQL database and checks that every stale week was solved
-exactly once between them.
+exactly once between them. Lock waits are seen in ``pg_locks`` (polled, never
+slept on); lock timeouts are made short with ``PLANNER_LOCK_TIMEOUT``.
 """
 
 from __future__ import annotations
@@ -18,13 +19,17 @@ from collections import Counter
 
 import sqlalchemy as sa
 
-from planner.runs.schedule import LOCK_NAMESPACE
+from planner.database.locks import LOCK_TIMEOUT_ENV, week_lock_name
+from planner.runs.schedule import week_lock
+from planner.runs.weekly import solve_period
 from planner.synthetic.benchmark_network import benchmark_network
 from planner.synthetic.frames import write_folder as write_network
 from tests.helpers import PLANNER, invoke, planner
 
 #: A resolve log line: the week code, then what happened to it.
 LOG_LINE = re.compile(r"^(\d{4}-W\d{2}) (optimal|infeasible|unbounded|failed|skipped:)")
+#: The line that closes a resolve's log.
+SUMMARY_LINE = re.compile(r"^resolve: \d+ solved")
 
 # Week 42 is infeasible: C3 has no shortage penalty and no lane leads to it.
 INFEASIBLE_WEEK = {
@@ -59,9 +64,11 @@ def week_runs(engine: sa.Engine) -> list[sa.Row]:
 
 
 def log_lines(stdout: str) -> dict[str, str]:
-    """Week code -> its one log line; fails on a second line for the same week."""
+    """Week code -> its one log line; fails on a second line for the same week or a missing summary."""
+    *weeks, summary = stdout.splitlines()
+    assert SUMMARY_LINE.match(summary), f"no summary line at the end: {summary!r}"
     lines: dict[str, str] = {}
-    for line in stdout.splitlines():
+    for line in weeks:
         match = LOG_LINE.match(line)
         assert match, f"unexpected log line {line!r}"
         assert match[1] not in lines, f"two log lines for {match[1]}"
@@ -176,29 +183,113 @@ def test_resolve_reports_an_infeasible_week_once_and_then_leaves_it(
     assert len(week_runs(engine)) == 3
 
 
-def test_resolve_skips_a_week_whose_lock_another_session_holds(
-    engine: sa.Engine, write_folder, network_files
+def hold_week_lock(conn: sa.Connection, period: str) -> int:
+    """Hold the planner's lock of ``period`` on ``conn`` (until it rolls back), as a solve does; its pid."""
+    name = week_lock_name(period)
+    conn.execute(sa.text("INSERT INTO planner_lock (name) VALUES (:name) ON CONFLICT DO NOTHING"), {"name": name})
+    conn.commit()
+    conn.execute(sa.text("SELECT name FROM planner_lock WHERE name = :name FOR UPDATE"), {"name": name})
+    return conn.execute(sa.text("SELECT pg_backend_pid()")).scalar_one()
+
+
+def test_a_solve_and_resolve_give_up_on_a_week_whose_lock_is_held_past_the_timeout(
+    engine: sa.Engine, write_folder, network_files, monkeypatch
 ) -> None:
+    monkeypatch.setenv(LOCK_TIMEOUT_ENV, "2")
     load(write_folder(network_files))
     with engine.connect() as holder:
-        period_id = holder.execute(
-            sa.text("SELECT id FROM period WHERE code = '2026-W41'")
-        ).scalar_one()
-        key = {"ns": LOCK_NAMESPACE, "id": period_id}
-        holder.execute(sa.text("SELECT pg_advisory_lock(:ns, :id)"), key)
-        holder.commit()
+        holder_pid = hold_week_lock(holder, "2026-W41")
+        solve = subprocess.Popen(
+            [*PLANNER, "solve", "--period", "2026-W41"], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True
+        )
+        # The solve really waits for the held lock before it gives up.
+        assert wait_until(lambda: lock_waiters(engine, holder_pid) == 1 or solve.poll() is not None)
+        assert solve.poll() is None, "the solve did not wait for the lock"
+        _, stderr = solve.communicate(timeout=60)
         busy = planner("resolve")
-        holder.execute(sa.text("SELECT pg_advisory_unlock(:ns, :id)"), key)
-        holder.commit()
-    assert busy.returncode == 0, busy.stderr
+        holder.rollback()
+    assert solve.returncode == 4, stderr
+    assert "Traceback" not in stderr
+    message = " ".join(stderr.split())
+    assert f"2026-W41: week 2026-W41: locked by another session (pid {holder_pid}, user " in message
+    assert "which did not release it within 2 s; let that solve finish and solve the week again, " in message
+    assert "or set PLANNER_LOCK_TIMEOUT to wait longer" in message
+
+    assert busy.returncode == 4, busy.stderr
     lines = log_lines(busy.stdout)
     assert solved(lines) == {"2026-W40"}
-    assert lines["2026-W41"] == "2026-W41 skipped: being solved by another process"
+    assert lines["2026-W41"].startswith(f"2026-W41 skipped: locked by another session (pid {holder_pid}, user ")
+    assert lines["2026-W41"].endswith(" for more than 2 s")
+    summary = busy.stdout.splitlines()[-1]
+    assert summary == (
+        "resolve: 1 solved, 1 not solved because another session held the lock for more than 2 s "
+        "(2026-W41); run resolve again once it is released"
+    )
+    assert [r.period for r in week_runs(engine)] == ["2026-W40"]
 
     free = invoke("resolve")
     assert free.exit_code == 0, free.output
     assert solved(log_lines(free.stdout)) == {"2026-W41"}
     assert Counter(r.period for r in week_runs(engine)) == Counter({"2026-W40": 1, "2026-W41": 1})
+
+
+def test_resolve_waits_for_a_week_another_process_is_solving_and_leaves_it_to_that_process(
+    engine: sa.Engine, write_folder, network_files
+) -> None:
+    load(write_folder(network_files))
+    with week_lock(engine, "2026-W41") as held:
+        assert held
+        resolving = subprocess.Popen([*PLANNER, "resolve"], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+        # resolve has solved week 40 and now waits for week 41, which this
+        # process is solving (within the default timeout of 60 s).
+        assert wait_until(lambda: lock_waiters(engine) == 1 or resolving.poll() is not None)
+        assert resolving.poll() is None, "resolve did not wait for the week's lock"
+        run_id = solve_period(engine, "2026-W41").run_id
+    stdout, stderr = resolving.communicate(timeout=120)
+    assert resolving.returncode == 0, stderr
+    lines = log_lines(stdout)
+    assert solved(lines) == {"2026-W40"}
+    assert lines["2026-W41"] == f"2026-W41 skipped: being solved by another process; up to date (run {run_id})"
+    assert stdout.splitlines()[-1] == "resolve: 1 solved, 1 solved by another process (2026-W41)"
+    assert Counter(r.period for r in week_runs(engine)) == Counter({"2026-W40": 1, "2026-W41": 1})
+
+
+def test_resolve_does_not_solve_again_a_week_that_failed_on_its_unchanged_input(
+    engine: sa.Engine, write_folder, network_files
+) -> None:
+    files = dict(network_files)
+    files["lanes.csv"] = files["lanes.csv"].replace("2026-W41,W1,C3,,2,,", "2026-W41,W1,C3,,2.000001,,")
+    load(write_folder(files))
+    first = planner("resolve")
+    assert first.returncode == 1, first.stderr
+    lines = log_lines(first.stdout)
+    assert solved(lines) == {"2026-W40", "2026-W41"}
+    assert lines["2026-W41"].startswith("2026-W41 failed run ")
+    # The failure line says why: the figure and the precision.
+    assert "value 2.000001 has more than 4 decimals" in lines["2026-W41"]
+    assert "solve with a larger --cost-decimals" in lines["2026-W41"]
+    (failed,) = [r for r in week_runs(engine) if r.status == "failed"]
+
+    second = planner("resolve")
+    assert second.returncode == 0, second.stderr
+    line = log_lines(second.stdout)["2026-W41"]
+    assert line.startswith(f"2026-W41 skipped: input unchanged since run {failed.id}, which failed: ")
+    assert "value 2.000001 has more than 4 decimals" in line
+    assert len(week_runs(engine)) == 2
+
+    # A run failed by another version of the planner is tried again.
+    with engine.begin() as conn:
+        conn.execute(sa.text("UPDATE solve_run SET planner_version = '0.0.1' WHERE id = :id"), {"id": failed.id})
+    newer = invoke("resolve")
+    assert newer.exit_code == 1, newer.output
+    assert solved(log_lines(newer.stdout)) == {"2026-W41"}
+    assert [r.status for r in week_runs(engine)] == ["optimal", "failed", "failed"]
+
+    # Enough decimals make another input: both weeks are solved at the new precision.
+    precise = invoke("resolve", "--cost-decimals", "6")
+    assert precise.exit_code == 0, precise.output
+    assert solved(log_lines(precise.stdout)) == {"2026-W40", "2026-W41"}
+    assert week_runs(engine)[-1].status == "optimal"
 
 
 def test_two_resolves_started_together_solve_each_week_once(engine: sa.Engine, tmp_path) -> None:
@@ -234,15 +325,18 @@ def test_two_resolves_started_together_solve_each_week_once(engine: sa.Engine, t
     assert all(r.status == "optimal" and r.certificate_ok for r in runs)
 
 
-def advisory_waiters(engine: sa.Engine, period_id: int) -> int:
-    """Sessions waiting (not granted) for the planner's advisory lock of a week."""
+def lock_waiters(engine: sa.Engine, holder_pid: int | None = None) -> int:
+    """Sessions waiting for a planner lock (a row of ``planner_lock``), held by ``holder_pid`` if given."""
     with engine.connect() as conn:
         return conn.execute(
             sa.text(
-                "SELECT count(*) FROM pg_locks WHERE locktype = 'advisory' AND NOT granted "
-                "AND classid = :ns AND objid = :id"
+                "SELECT count(*) FROM pg_stat_activity a "
+                "WHERE a.datname = current_database() AND cardinality(pg_blocking_pids(a.pid)) > 0 "
+                "AND (CAST(:holder AS int) IS NULL OR :holder = ANY(pg_blocking_pids(a.pid))) "
+                "AND EXISTS (SELECT FROM pg_locks l WHERE l.pid = a.pid AND l.locktype = 'tuple' "
+                "AND l.relation = 'planner_lock'::regclass)"
             ),
-            {"ns": LOCK_NAMESPACE, "id": period_id},
+            {"holder": holder_pid},
         ).scalar_one()
 
 
@@ -263,23 +357,18 @@ def test_solve_all_waits_for_a_week_that_resolve_holds(engine: sa.Engine, write_
 
     load(write_folder(network_files))
     url = engine.url.render_as_string(hide_password=False)
-    with engine.connect() as holder:
-        period_id = holder.execute(sa.text("SELECT id FROM period WHERE code = '2026-W40'")).scalar_one()
-        key = {"ns": LOCK_NAMESPACE, "id": period_id}
-        holder.execute(sa.text("SELECT pg_advisory_lock(:ns, :id)"), key)
-        holder.commit()
+    with week_lock(engine, "2026-W40", wait=False) as held:
+        assert held
         result = {}
         worker = threading.Thread(
             target=lambda: result.update(out=solve_many(url, ["2026-W40"], workers=1))
         )
         worker.start()
         # The explicit solve waits for the week's lock: the server shows its
-        # session waiting on that advisory lock (polled, never a fixed sleep).
-        assert wait_until(lambda: advisory_waiters(engine, period_id) == 1), "the solve never waited for the lock"
+        # session waiting on that row (polled, never a fixed sleep).
+        assert wait_until(lambda: lock_waiters(engine) == 1), "the solve never waited for the lock"
         assert worker.is_alive()
         assert week_runs(engine) == []
-        holder.execute(sa.text("SELECT pg_advisory_unlock(:ns, :id)"), key)
-        holder.commit()
     worker.join(timeout=60)
     assert not worker.is_alive()
     assert [o.ok for o in result["out"]] == [True]

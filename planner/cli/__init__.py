@@ -5,6 +5,7 @@
 :mod:`.data`            ``init``, ``currency``, ``load``, ``periods``
 :mod:`.solving`         ``solve``, ``resolve``, ``runs``, ``certificate``
 :mod:`.analysis`        ``report``, ``explain``, ``prices``, ``rate-ranges``
+:mod:`.history`         ``prune``, ``pin``, ``unpin``
 :mod:`.shell`           ``sql``, ``server start|status|stop``
 :mod:`.demo`            ``demo``
 =====================  ==============================================
@@ -21,6 +22,7 @@ from planner.cli.common import app
 from planner.cli import data  # noqa: F401  (registers init, currency, load, periods)
 from planner.cli import solving  # noqa: F401  (registers solve, resolve, runs, certificate)
 from planner.cli import analysis  # noqa: F401  (registers report, explain, prices, rate-ranges)
+from planner.cli import history  # noqa: F401  (registers prune, pin, unpin)
 from planner.cli import shell  # noqa: F401  (registers sql, server)
 from planner.cli import demo  # noqa: F401  (registers demo)
 # isort: on

@@ -4,21 +4,7 @@ Every command runs inside :class:`PlannerGroup`, which turns the failures a
 person can act on into one or two lines and an exit code of its own, in one
 place, so no command prints a traceback for them:
 
-====  ================================================================
-code  meaning
-====  ================================================================
-0     success (also "nothing to show yet", which is said on stderr)
-1     a run did not end optimal (infeasible, unbounded, failed), or a
-      command was asked about such a run
-2     bad input or usage (a file, an option, a URL that cannot be read)
-3     database unavailable or connection lost (server down, wrong port,
-      unknown host, missing database, unknown role, refused password,
-      connection ended mid-command)
-4     a program the command needs is missing (``psql``)
-====  ================================================================
-
-``planner --verbose`` (or ``PLANNER_VERBOSE=1``) adds the traceback.
-"""
+====  ========================================================="""
 
 from __future__ import annotations
 
@@ -33,20 +19,22 @@ from rich.console import Console
 from rich.text import Text
 from typer.core import TyperCommand, TyperGroup
 
-from planner.errors import DatabaseUnavailable, NotOptimal, PlannerError
+from planner.errors import DatabaseUnavailable, LockTimeout, NotOptimal, PlannerError
 
 EXIT_OK = 0
 EXIT_NOT_OPTIMAL = 1
 EXIT_USAGE = 2
 EXIT_DATABASE = 3
-EXIT_MISSING_PROGRAM = 4
+#: Exit code of a command that gave up waiting for a lock another session held.
+EXIT_LOCKED = 4
+EXIT_MISSING_PROGRAM = 5
 #: Environment variable that turns on tracebacks, like ``--verbose``.
 VERBOSE_ENV = "PLANNER_VERBOSE"
 
 #: The commands in the order of the workflow, as ``planner --help`` lists them.
 WORKFLOW = (
     "init", "currency", "load", "periods", "solve", "resolve", "runs", "certificate", "report", "explain",
-    "prices", "rate-ranges", "sql", "server", "demo",
+    "prices", "rate-ranges", "pin", "unpin", "prune", "sql", "server", "demo",
 )
 
 _state = {"verbose": False, "url": None}
@@ -93,15 +81,22 @@ class PlannerGroup(TyperGroup):
     def invoke(self, ctx):
         try:
             return super().invoke(ctx)
-        except DatabaseUnavailable as err:
-            _stop(err, [str(err)], EXIT_DATABASE)
-        except NotOptimal as err:
-            _stop(err, [str(err)], EXIT_NOT_OPTIMAL)
         except PlannerError as err:
-            _stop(err, [str(err)], EXIT_USAGE)
+            _stop(err, [str(err)], exit_code(err))
         except _connection_errors() as err:
             lines, code = connection_failure(err, _state["url"])
             _stop(err, lines, code)
+
+
+def exit_code(err: BaseException) -> int:
+    """The exit code of a :class:`PlannerError` (see the table above); 2 for any other error."""
+    if isinstance(err, DatabaseUnavailable):
+        return EXIT_DATABASE
+    if isinstance(err, NotOptimal):
+        return EXIT_NOT_OPTIMAL
+    if isinstance(err, LockTimeout):
+        return EXIT_LOCKED
+    return EXIT_USAGE
 
 
 def _connection_errors() -> tuple[type[BaseException], ...]:
@@ -166,7 +161,8 @@ def main(
 
     Workflow: init, load, solve, then runs, report, explain, prices.
     Exit codes: 0 success, 1 a run did not end optimal, 2 bad input or usage,
-    3 database unavailable or connection lost, 4 a needed program is missing.
+    3 database unavailable or connection lost, 4 a lock held too long by
+    another session, 5 a needed program is missing.
     """
     _state["verbose"] = verbose
     _state["url"] = None
@@ -196,8 +192,10 @@ def database_target(database_url: Optional[str]) -> str:
 def engine(database_url: Optional[str]):
     """A SQLAlchemy engine on the chosen database, its schema migrated."""
     from planner.database import connect
+    from planner.database.locks import lock_timeout
     from planner.database.migrate import ensure_schema
 
+    lock_timeout()  # a bad PLANNER_LOCK_TIMEOUT is refused before any work starts
     db_engine = connect.get_engine(database_target(database_url))
     ensure_schema(db_engine)
     return db_engine
@@ -281,8 +279,13 @@ def _reason(text: str) -> str:
     return _first_line(text)
 
 
-def fail(err: Exception, code: int = EXIT_USAGE) -> None:
-    """Print ``err`` as one message (never read as markup: it quotes user data) and exit."""
+def fail(err: Exception, code: int | None = None) -> None:
+    """Print ``err`` as one message (never read as markup: it quotes user data) and exit.
+
+    The code is ``code`` if given, else the one :func:`exit_code` gives the error.
+    """
+    if code is None:
+        code = exit_code(err)
     err_console.print(Text.assemble(("error: ", "bold red"), str(err)), highlight=False, soft_wrap=True)
     raise typer.Exit(code)
 

@@ -57,7 +57,8 @@ def currency(
 
     Example: planner currency EUR
     """
-    from planner.database.settings import DEFAULT_CURRENCY, currency as current, set_currency
+    from planner.database.settings import DEFAULT_CURRENCY, set_currency
+    from planner.database.settings import currency as current
 
     db_engine = engine(database_url)
     if code is None:
@@ -92,13 +93,15 @@ def periods(database_url: Optional[str] = DATABASE_URL) -> None:
 
     Example: planner periods
     """
+    from planner.database.settings import currency
     from planner.runs.weekly import period_overview
 
-    rows = period_overview(engine(database_url))
+    db_engine = engine(database_url)
+    rows = period_overview(db_engine)
     if not rows:
         console.print("no periods loaded yet; load a folder with `planner load DIR`")
         return
-    table = Table("period", "batch", "latest run", "status", "cost", "certificate")
+    table = Table("period", "batch", "latest run", "status", f"cost ({currency(db_engine)})", "certificate")
     for r in rows:
         table.add_row(
             r["period"], str(r["batch_id"]), str(r["run_id"] or "-"), r["status"] or "not solved",

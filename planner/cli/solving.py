@@ -11,6 +11,7 @@ from rich.table import Column, Table
 from planner.cli.common import (
     COST_DECIMALS,
     DATABASE_URL,
+    EXIT_LOCKED,
     EXIT_NOT_OPTIMAL,
     QUANTITY_DECIMALS,
     app,
@@ -71,7 +72,11 @@ def solve(
 
 
 def _solve_weeks(url: str, chosen: list[str], scaling, workers: Optional[int]) -> None:
-    """Solve ``chosen`` weeks in parallel with a progress bar; print a summary; exit 1 on a bad week."""
+    """Solve ``chosen`` weeks in parallel with a progress bar; print a summary.
+
+    Exits 4 when a week's lock was held by another session for longer than the
+    lock timeout, else 1 when a week did not end optimal.
+    """
     from rich.progress import (
         BarColumn,
         MofNCompleteColumn,
@@ -95,6 +100,8 @@ def _solve_weeks(url: str, chosen: list[str], scaling, workers: Optional[int]) -
         message = o.note if o.summary is None else o.summary.message
         if message:
             err_console.print(f"{o.period}: {message}", markup=False, highlight=False, soft_wrap=True)
+    if any(o.locked for o in outcomes):
+        raise typer.Exit(EXIT_LOCKED)
     if any(not o.ok for o in outcomes):
         raise typer.Exit(EXIT_NOT_OPTIMAL)
 
@@ -122,7 +129,10 @@ def resolve(
 
     Solves exactly the weeks whose input changed since their latest optimal run.
     Safe to run from several processes or machines at once: a week is never
-    solved twice. One log line per week; exit 1 if any week solved ended non-optimal.
+    solved twice. One log line per week and a summary line; exit 4 if a week
+    was left unsolved because another session held its lock for longer than
+    the lock timeout ($PLANNER_LOCK_TIMEOUT, 60 s), else 1 if a week solved
+    ended non-optimal.
 
     Example: planner resolve --dry-run
     """
@@ -144,8 +154,10 @@ def resolve(
         if not stale:
             print("nothing to solve: every loaded week is up to date")
         return
-    outcomes = resolve_weeks(db_engine, scaling, log=lambda line: print(line, flush=True))
-    if any(not o.ok for o in outcomes):
+    report = resolve_weeks(db_engine, scaling, log=lambda line: print(line, flush=True))
+    if report.locked:
+        raise typer.Exit(EXIT_LOCKED)
+    if any(not o.ok for o in report.outcomes):
         raise typer.Exit(EXIT_NOT_OPTIMAL)
 
 

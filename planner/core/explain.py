@@ -17,7 +17,6 @@ from planner.core.network import ArcKind, Instance, NodeRole
 from planner.core.prices import HIGH_REASON, PriceRanges, marginal_path
 from planner.core.residual import Residual
 
-
 #: How the virtual nodes read in words: never by their internal names.
 _VIRTUAL_WORDS = {NodeRole.SPARE: "spare supply", NodeRole.SHORT: "unmet demand"}
 

@@ -368,21 +368,6 @@ class ZeroComponents:
         first_segment = lifting.segment(start[order], np.maximum(exit_node, 0))
         units[order] = np.where(ok, np.minimum(path_units, first_segment), 0)
         return dist, reached, units
-        start = self.comp[source[apart]]
-        order = apart[np.argsort(start, kind="stable")]
-        starts, first = np.unique(self.comp[source[order]], return_index=True)
-        qptr = np.append(first, order.shape[0]).astype(np.int64)
-        if radius is None:
-            search_radius = np.full(starts.shape[0], -1, dtype=np.int64)
-        else:
-            search_radius = np.maximum.reduceat(np.asarray(radius, np.int64)[order], first)
-        searches = Searches(starts, search_radius, qptr, self.comp[target[order]], target[order])
-        found, path_units, exit_node = run_searches(self.contracted, self.lifting, searches, engine=engine)
-        ok = found >= 0
-        dist[order] = np.where(ok, found, 0)
-        reached[order] = ok
-        units[order] = np.where(ok, np.minimum(path_units, self.lifting.segment(source[order], np.maximum(exit_node, 0))), 0)
-        return dist, reached, units
 
 
 def _reversed(table: ArcTable) -> tuple[ArcTable, np.ndarray]:

@@ -46,12 +46,18 @@ class FlowSolution:
         Scaled optimal cost, exact.
     solver_seconds : float
         Wall time of building the solver's graph and solving.
+    potential : numpy.ndarray or None
+        int64 potential per node that proves ``flow`` optimal (non-negative
+        reduced cost ``c + pi(tail) - pi(head)`` on every residual arc), when
+        the engine gives one: the warm engine does (:mod:`planner.core.engines`),
+        OR-Tools does not.
     """
 
     status: str
     flow: np.ndarray | None
     cost: int
     solver_seconds: float
+    potential: np.ndarray | None = None
 
 
 def shifted_supply(inst: Instance) -> np.ndarray:

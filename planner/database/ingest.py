@@ -56,6 +56,8 @@ from planner.contract import (
     SUPPLY,
 )
 from planner.database.connect import raw_copy_connection
+from planner.database.history import ensure_partitions
+from planner.database.locks import LOAD_LOCK, planner_lock
 from planner.database.migrate import ensure_schema
 from planner.database.models import SITE_KINDS, LoadBatch
 from planner.errors import PlannerError, Problem, ValidationError
@@ -82,9 +84,6 @@ _EDGE_SPACE_MARKS = (" ,", ", ", " \n", "\n ", " \r", "\t", '" ', ' "')
 _LINE = "_line"
 _FINGERPRINT_VERSION = "planner period fingerprint v1"
 _COPY_CHUNK = 8 * 1024 * 1024
-# Serialises concurrent loads so that "identical to the latest batch" stays true
-# until commit; an arbitrary constant reserved by the planner for loads.
-_LOAD_LOCK_KEY = 0x706C616E6C6F6164
 
 
 @dataclass(frozen=True)
@@ -919,6 +918,9 @@ def load_folder(engine: sa.Engine, folder: str | Path) -> LoadResult:
         If ``folder`` is not a folder, or the database refuses the rows.
     ValidationError
         If any file has problems; the database is left unchanged.
+    LockTimeout
+        If another load held the load lock for longer than the lock timeout
+        (``PLANNER_LOCK_TIMEOUT``); nothing was loaded.
     """
     ensure_schema(engine)
     path, sources = _read_sources(folder)
@@ -931,8 +933,11 @@ def load_folder(engine: sa.Engine, folder: str | Path) -> LoadResult:
             if latest is not None and latest.content_sha256 == content:
                 return _unchanged(connection, path, latest)
     validated = _validate_sources(path, sources)
-    with engine.begin() as connection:
-        connection.execute(sa.text("SELECT pg_advisory_xact_lock(:key)"), {"key": _LOAD_LOCK_KEY})
+    # Loads are serialised, so that "identical to the latest batch" stays true until commit.
+    with (
+        planner_lock(engine, LOAD_LOCK, what="loading", advice="let that load finish and load again"),
+        engine.begin() as connection,
+    ):
         latest = _latest_batch(connection)
         if latest is not None and latest.content_sha256 == validated.content_sha256:
             return _unchanged(connection, path, latest)
@@ -948,9 +953,12 @@ def load_folder(engine: sa.Engine, folder: str | Path) -> LoadResult:
                 f"the database refused the rows of {path} ({error}); nothing was loaded"
             ) from error
     # Fresh statistics, so that the solve that usually follows a load (cron)
-    # plans its snapshot reads on the new row counts, whatever autovacuum does.
+    # plans its snapshot reads on the new row counts, whatever autovacuum does;
+    # and the new weeks' result partitions, outside the load's transaction
+    # (creating one locks its parent table; a store creates any still missing).
     with engine.begin() as connection:
         connection.execute(sa.text("ANALYZE site, site_version, period_snapshot, supply, demand, lane, lane_rate"))
+        ensure_partitions(connection, validated.periods)
     rows = {name: digest.rows for name, digest in validated.files.items()}
     counts = ", ".join(f"{name} {count:,}" for name, count in rows.items())
     return LoadResult(

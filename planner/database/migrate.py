@@ -19,7 +19,8 @@ from alembic.script import ScriptDirectory
 from alembic.util import CommandError
 
 from planner.database.connect import get_engine, masked_url
-from planner.errors import PlannerError
+from planner.database.locks import LOCK_TIMEOUT_ENV, is_lock_timeout, lock_timeout, set_lock_timeout
+from planner.errors import LockTimeout, PlannerError
 
 __all__ = [
     "MIGRATIONS_DIR",
@@ -32,9 +33,9 @@ __all__ = [
 
 #: The Alembic script folder at the top of the repository.
 MIGRATIONS_DIR = Path(__file__).resolve().parents[2] / "migrations"
-# Serialises concurrent upgrades of one database; an arbitrary constant that the
-# planner reserves for this purpose (pg_advisory_xact_lock takes a bigint key).
-_MIGRATION_LOCK_KEY = 0x706C616E6E6572
+# Serialises the first upgrade of an empty database, which has no table to lock
+# yet; an arbitrary constant (pg_advisory_xact_lock takes a bigint key).
+_FIRST_MIGRATION_LOCK_KEY = 0x706C616E6E6572
 
 
 def alembic_config(connection: sa.Connection | None = None) -> Config:
@@ -91,8 +92,10 @@ def migrate(engine_or_url: sa.Engine | str | None = None) -> None:
     """Upgrade the database schema to the newest migration (``alembic upgrade head``).
 
     Idempotent: a database already at head costs one query. Concurrent callers are
-    serialised with a transaction-level advisory lock, and the upgrade runs in one
-    transaction, so a failed migration leaves the schema as it was.
+    serialised by a lock on ``alembic_version`` (see :func:`_lock_for_upgrade`), every
+    lock wait of the upgrade lasts at most the lock timeout (``PLANNER_LOCK_TIMEOUT``),
+    and the upgrade runs in one transaction, so a failed migration leaves the schema
+    as it was.
 
     Parameters
     ----------
@@ -104,6 +107,8 @@ def migrate(engine_or_url: sa.Engine | str | None = None) -> None:
     PlannerError
         If the database is at a revision this code does not know (it was upgraded by
         a newer planner).
+    LockTimeout
+        If another session held a lock the upgrade needs for longer than the lock timeout.
     """
     if isinstance(engine_or_url, sa.Engine):
         _upgrade(engine_or_url)
@@ -117,18 +122,45 @@ def migrate(engine_or_url: sa.Engine | str | None = None) -> None:
 
 def _upgrade(engine: sa.Engine) -> None:
     head = head_revision()
+    seconds = lock_timeout()
     with engine.begin() as connection:
         if current_revision(connection) == head:
             return
-        connection.execute(
-            sa.text("SELECT pg_advisory_xact_lock(:key)"), {"key": _MIGRATION_LOCK_KEY}
-        )
-        revision = current_revision(connection)
-        if revision == head:
-            return
-        if revision is not None:
-            _check_known_revision(revision, engine)
-        command.upgrade(alembic_config(connection), "head")
+        try:
+            _lock_for_upgrade(connection, seconds)
+            revision = current_revision(connection)
+            if revision == head:
+                return
+            if revision is not None:
+                _check_known_revision(revision, engine)
+            command.upgrade(alembic_config(connection), "head")
+        except sa.exc.OperationalError as error:
+            if not is_lock_timeout(error):
+                raise
+            raise LockTimeout(
+                f"upgrading the schema of {masked_url(engine.url)} waited more than {seconds:g} s for a lock "
+                "held by another session (another upgrade, or a query or open transaction on the planner's "
+                "tables: see pg_stat_activity); nothing was changed: run the command again once it ends, "
+                f"or set {LOCK_TIMEOUT_ENV} to wait longer"
+            ) from None
+
+
+def _lock_for_upgrade(connection: sa.Connection, seconds: float) -> None:
+    """Serialise upgrades of one database, and bound each of the upgrade's lock waits by ``seconds``.
+
+    Once a schema exists, the lock is ``alembic_version`` itself, in a mode that
+    conflicts only with itself and with writers: taking it needs rights on the
+    table that only the schema's owner has, so the reporting role cannot hold
+    upgrades up. An empty database has no table to lock yet; its first upgrade
+    is serialised with a transaction-level advisory lock. Any role that may
+    connect could take that key, but only before the first upgrade has made
+    the database usable, and the wait is bounded like every other.
+    """
+    set_lock_timeout(connection, seconds)
+    if connection.execute(sa.text("SELECT to_regclass('alembic_version')")).scalar_one() is None:
+        connection.execute(sa.text("SELECT pg_advisory_xact_lock(:key)"), {"key": _FIRST_MIGRATION_LOCK_KEY})
+    else:
+        connection.execute(sa.text("LOCK TABLE alembic_version IN SHARE ROW EXCLUSIVE MODE"))
 
 
 def _check_known_revision(revision: str, engine: sa.Engine) -> None:

@@ -35,8 +35,10 @@ __all__ = [
     "LoadBatch",
     "Period",
     "PeriodSnapshot",
+    "PlannerLock",
     "RunFlow",
     "RunLimit",
+    "RunPin",
     "RunSitePrice",
     "Site",
     "Setting",
@@ -270,27 +272,36 @@ class SolveRun(Base):
     planner_version: Mapped[str | None] = mapped_column(sa.Text)
 
 
+#: The result tables are LIST-partitioned by their ``period`` (the week's code), one
+#: partition per week (migration 0006).
+_BY_PERIOD = {"postgresql_partition_by": "LIST (period)"}
+
+
 class RunFlow(Base):
-    """Flow and reduced cost of one lane in one period of a run."""
+    """Flow of one lane that carries flow in one period of a run (migration 0006: sparse).
+
+    A lane without a row carries nothing; its reduced cost follows from the
+    stored prices (the ``lane_flow`` view derives it).
+    """
 
     __tablename__ = "run_flow"
+    __table_args__ = (sa.CheckConstraint("flow <> 0", name="flow_nonzero"), _BY_PERIOD)
 
     # No foreign keys on the bulk result tables: see migration 0001.
     run_id: Mapped[int] = mapped_column(sa.BigInteger, primary_key=True)
-    period_id: Mapped[int] = mapped_column(primary_key=True)
+    period: Mapped[str] = mapped_column(sa.Text, primary_key=True)
     lane_id: Mapped[int] = mapped_column(primary_key=True)
     flow: Mapped[Decimal]
-    reduced_cost: Mapped[Decimal]
-    capacity_value: Mapped[Decimal | None]
 
 
 class RunSitePrice(Base):
     """Shadow price of a site in one period of a run, with its valid range."""
 
     __tablename__ = "run_site_price"
+    __table_args__ = (_BY_PERIOD,)
 
     run_id: Mapped[int] = mapped_column(sa.BigInteger, primary_key=True)
-    period_id: Mapped[int] = mapped_column(primary_key=True)
+    period: Mapped[str] = mapped_column(sa.Text, primary_key=True)
     site_id: Mapped[int] = mapped_column(primary_key=True)
     price: Mapped[Decimal]
     price_low: Mapped[Decimal | None]
@@ -299,7 +310,6 @@ class RunSitePrice(Base):
     high_reason: Mapped[str | None] = mapped_column(sa.Text)
     high_units: Mapped[Decimal | None]
     throughput_flow: Mapped[Decimal | None]
-    throughput_value: Mapped[Decimal | None]
     shortage: Mapped[Decimal | None]
     spare: Mapped[Decimal | None]
     #: Price at the outgoing side of a warehouse split in two (migration 0004).
@@ -311,14 +321,13 @@ class RunStock(Base):
     """Stock a linked-horizon run carries out of a week at a site (migration 0002)."""
 
     __tablename__ = "run_stock"
-    __table_args__ = (sa.CheckConstraint("stock >= 0", name="stock_nonnegative"),)
+    __table_args__ = (sa.CheckConstraint("stock >= 0", name="stock_nonnegative"), _BY_PERIOD)
 
     run_id: Mapped[int] = mapped_column(sa.BigInteger, primary_key=True)
-    period_id: Mapped[int] = mapped_column(primary_key=True)
+    period: Mapped[str] = mapped_column(sa.Text, primary_key=True)
     site_id: Mapped[int] = mapped_column(primary_key=True)
     stock: Mapped[Decimal]
     holding_cost: Mapped[Decimal]
-    storage_value: Mapped[Decimal | None]
 
 class RunLimit(Base):
     """A limit at its bound in one period of a run, with its exact one-sided values (migration 0004).
@@ -332,25 +341,57 @@ class RunLimit(Base):
         sa.CheckConstraint(_in_list("limit_kind", LIMIT_KINDS), name="limit_kind"),
         sa.CheckConstraint("loosen_value >= 0", name="loosen_value_nonnegative"),
         sa.CheckConstraint("(tighten_cost IS NULL) = (tighten_blocked IS NOT NULL)", name="tighten_or_blocked"),
+        sa.CheckConstraint("exact OR (loosen_units IS NULL AND tighten_cost IS NULL)", name="legacy"),
+        sa.CheckConstraint("NOT exact OR loosen_units IS NOT NULL", name="exact_units"),
+        _BY_PERIOD,
     )
 
     run_id: Mapped[int] = mapped_column(sa.BigInteger, primary_key=True)
-    period_id: Mapped[int] = mapped_column(primary_key=True)
+    period: Mapped[str] = mapped_column(sa.Text, primary_key=True)
     limit_kind: Mapped[str] = mapped_column(sa.Text, primary_key=True)
     ref_id: Mapped[int] = mapped_column(primary_key=True)
     bound: Mapped[Decimal]
     flow: Mapped[Decimal]
     loosen_value: Mapped[Decimal]
-    loosen_units: Mapped[Decimal]
+    #: None only for limits converted from runs stored before 0004 (``exact`` false).
+    loosen_units: Mapped[Decimal | None]
     tighten_cost: Mapped[Decimal | None]
     tighten_units: Mapped[Decimal | None]
     tighten_blocked: Mapped[str | None] = mapped_column(sa.Text)
     rate_low: Mapped[Decimal | None]
     rate_high: Mapped[Decimal | None]
+    #: False for a run stored before 0004: ``loosen_value`` is one dual's bound, nothing else is known.
+    exact: Mapped[bool] = mapped_column(server_default=sa.true())
+
+
+class RunPin(Base):
+    """A run kept by retention whatever its age (migration 0006)."""
+
+    __tablename__ = "run_pin"
+
+    run_id: Mapped[int] = mapped_column(
+        sa.BigInteger, sa.ForeignKey("solve_run.id", ondelete="CASCADE"), primary_key=True
+    )
+    pinned_at: Mapped[datetime.datetime] = mapped_column(sa.DateTime(timezone=True), server_default=sa.func.now())
+    pinned_by: Mapped[str] = mapped_column(sa.Text, server_default=sa.text("current_user"))
+    note: Mapped[str | None] = mapped_column(sa.Text)
+
+
+class PlannerLock(Base):
+    """A row the planner locks to serialise loads (``load``) or a week's solves (``week 2026-W49``).
+
+    Held with ``SELECT ... FOR UPDATE`` for the guarded work (migration 0007);
+    the reporting role has no right on the table, so it cannot take these locks.
+    """
+
+    __tablename__ = "planner_lock"
+    __table_args__ = {"comment": "rows the planner locks (FOR UPDATE) to serialise loads and each week's solves; no other role may take them"}
+
+    name: Mapped[str] = mapped_column(sa.Text, primary_key=True)
 
 
 class Setting(Base):
-    """A setting kept once per database (migration 0006): ``currency``, an ISO 4217 code."""
+    """A setting kept once per database (migration 0008): ``currency``, an ISO 4217 code."""
 
     __tablename__ = "setting"
     __table_args__ = (sa.CheckConstraint("name <> 'currency' OR value ~ '^[A-Z]{3}$'", name="currency_code"),)

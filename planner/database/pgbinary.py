@@ -3,7 +3,7 @@
 A result table of a large run holds a row per lane and period; writing it as
 text means a Python string per figure and a decimal parse per figure on the
 server. Here every column becomes a block of fixed-width big-endian fields
-(``bigint``, ``integer`` or ``numeric``) built by numpy, the blocks are laid
+(``bigint``, ``integer``, ``numeric`` or fixed-width ``text``) built by numpy, the blocks are laid
 side by side into one byte matrix, and NULL fields drop their payload through
 a byte mask. The layout is the one PostgreSQL documents for ``COPY ... (FORMAT
 binary)``: a signature and two 32-bit words, then per row a 16-bit field count
@@ -40,9 +40,11 @@ class Column:
 
     Parameters
     ----------
-    kind : {"int8", "int4", "numeric"}
-    values : array of int
+    kind : {"int8", "int4", "numeric", "text"}
+    values : array of int, or of bytes for ``text``
         For ``numeric``, scaled integers: the value is ``values * 10**-decimals``.
+        For ``text``, a fixed-width bytes array (numpy ``S<n>``) of UTF-8
+        strings that all have that width (period codes, for example).
     decimals : int
         ``numeric`` only: decimal places of the scaled integers (0 to 12).
     present : bool array, optional
@@ -55,14 +57,20 @@ class Column:
     present: np.ndarray | None = None
 
     def __post_init__(self):
-        if self.kind not in ("int8", "int4", "numeric"):
+        if self.kind not in ("int8", "int4", "numeric", "text"):
             raise ValueError(f"unknown column kind {self.kind!r}")
+        if self.kind == "text":
+            values = np.asarray(self.values)
+            if values.dtype.kind != "S" or (values.size and (np.char.str_len(values) != values.itemsize).any()):
+                raise ValueError("text values must be bytes of one width")
         if self.kind == "numeric" and not 0 <= self.decimals <= 12:
             raise ValueError("numeric decimals must be between 0 and 12")
 
     @property
     def payload(self) -> int:
         """Bytes of one value."""
+        if self.kind == "text":
+            return np.asarray(self.values).itemsize
         return {"int8": 8, "int4": 4, "numeric": 8 + 2 * NUMERIC_DIGITS}[self.kind]
 
 
@@ -116,6 +124,10 @@ def _field_bytes(column: Column, rows: slice) -> np.ndarray:
         out["sign"] = sign
         out["dscale"] = column.decimals
         out["digits"] = digits
+    elif column.kind == "text":
+        dtype = np.dtype([("len", ">i4"), ("value", values.dtype)])
+        out = np.zeros(n, dtype=dtype)
+        out["value"] = values
     else:
         if column.kind == "int4" and n and (values.min() < -(2**31) or values.max() >= 2**31):
             raise ValueError("a value does not fit a 32-bit integer column")

@@ -120,7 +120,7 @@ def _reopen(conn: Connection, run_id: int) -> tuple[StoredRun, Snapshot | None]:
             )
         period_ids = np.array([s.period_id for s in snaps])
     inst = time_expand(merged["weeks"], cost_scale=scaling.cost_scale, quantity_scale=scaling.quantity_scale)
-    flow = _stored_flow(conn, run_id, inst, scaling, period_ids, merged)
+    flow = _stored_flow(conn, run_id, inst, scaling, periods, period_ids, merged)
     return StoredRun(
         run_id, str(row["kind"]), periods, scaling, merged["site_id"], merged["site_code"],
         merged["site_kind_name"], merged["lane_id"], merged["lane_labels"], merged["lane_present"],
@@ -156,23 +156,31 @@ def _horizon_batches(conn: Connection, run_id: int) -> tuple[list[str], list[int
     return [str(code) for code, _ in rows], [int(batch) for _, batch in rows]
 
 
-def _stored_flow(conn: Connection, run_id: int, inst: Instance, scaling: Scaling, period_ids, merged) -> np.ndarray:
-    """The run's stored flows put back on the arcs of ``inst``; refused when they do not balance."""
-    params = {"q": scaling.quantity_scale, "r": run_id}
+def _stored_flow(
+    conn: Connection, run_id: int, inst: Instance, scaling: Scaling, periods: list[str], period_ids, merged
+) -> np.ndarray:
+    """The run's stored flows put back on the arcs of ``inst``; refused when they do not balance.
+
+    The result tables are partitioned by the week's code: the codes are given
+    as constants, so only the run's weeks' partitions are read. ``run_flow``
+    holds only the lanes that carry flow; every other lane's flow is zero.
+    """
+    params = {"q": scaling.quantity_scale, "r": run_id, "codes": list(periods)}
+    per = "JOIN period p ON p.code = x.period WHERE x.run_id = %(r)s AND x.period = ANY(%(codes)s)"
     lanes = fetch_columns(
-        conn, "SELECT period_id, lane_id, (flow * %(q)s)::bigint AS flow FROM run_flow WHERE run_id = %(r)s",
+        conn, "SELECT p.id AS period_id, x.lane_id, (x.flow * %(q)s)::bigint AS flow FROM run_flow x " + per,
         params, ints=["period_id", "lane_id", "flow"],
     )
     sites = fetch_columns(
         conn,
-        "SELECT period_id, site_id, (coalesce(spare, 0) * %(q)s)::bigint AS spare, "
-        "(coalesce(shortage, 0) * %(q)s)::bigint AS shortage, "
-        "(coalesce(throughput_flow, 0) * %(q)s)::bigint AS throughput "
-        "FROM run_site_price WHERE run_id = %(r)s",
+        "SELECT p.id AS period_id, x.site_id, (coalesce(x.spare, 0) * %(q)s)::bigint AS spare, "
+        "(coalesce(x.shortage, 0) * %(q)s)::bigint AS shortage, "
+        "(coalesce(x.throughput_flow, 0) * %(q)s)::bigint AS throughput "
+        "FROM run_site_price x " + per,
         params, ints=["period_id", "site_id", "spare", "shortage", "throughput"],
     )
     stock = fetch_columns(
-        conn, "SELECT period_id, site_id, (stock * %(q)s)::bigint AS stock FROM run_stock WHERE run_id = %(r)s",
+        conn, "SELECT p.id AS period_id, x.site_id, (x.stock * %(q)s)::bigint AS stock FROM run_stock x " + per,
         params, ints=["period_id", "site_id", "stock"],
     )
     order = np.argsort(period_ids)

@@ -1,5 +1,11 @@
 """Persist a run: one ``solve_run`` row plus its flows and site prices, in one transaction.
 
+Results are sparse (migration 0006): prices of every site, the flow of every
+lane that carries flow, and every limit at its bound with its values. The
+reduced cost of any lane follows exactly from the stored prices and the
+snapshot's rate, and the views derive it. The result tables have one
+partition per period (:func:`planner.database.history.ensure_partitions`).
+
 Bulk rows go in with PostgreSQL COPY. The per-lane flows and the stock rows,
 the large tables, go in binary (:mod:`planner.database.pgbinary`: NUMERIC digits built
 by numpy from the scaled integers); the per-site prices, with their reason
@@ -148,7 +154,7 @@ def store_results(
     inst: Instance,
     outcome: Outcome,
     scaling: Scaling,
-    period_ids: np.ndarray,
+    periods: list[str],
     site_ids: np.ndarray,
     lane_ids: np.ndarray,
     site_kind: np.ndarray,
@@ -158,7 +164,7 @@ def store_results(
 
     Parameters
     ----------
-    period_ids : database ids of the instance's periods, in order.
+    periods : codes of the instance's periods, in order (the result tables' ``period``).
     site_ids : database ids of the sites (instance site index -> id).
     lane_ids : database ids of the lanes (instance lane index -> id).
     site_kind : :class:`SiteKind` code per site.
@@ -166,7 +172,8 @@ def store_results(
         Which lanes exist in which period (a horizon's periods may differ);
         all of them by default.
     """
-    ids = _RunIds(run_id, scaling, np.asarray(period_ids), np.asarray(site_ids), np.asarray(lane_ids), site_kind)
+    codes = np.array([code.encode() for code in periods])
+    ids = _RunIds(run_id, scaling, codes, np.asarray(site_ids), np.asarray(lane_ids), site_kind)
     if lane_present is None:
         lane_present = np.ones((inst.site_node.shape[0], len(lane_ids)), dtype=bool)
     _store_lane_flows(conn, ids, inst, outcome, lane_present)
@@ -181,23 +188,24 @@ class _RunIds:
 
     run_id: int
     scaling: Scaling
-    period_ids: np.ndarray
+    #: Period codes as fixed-width bytes (binary COPY ``text``).
+    periods: np.ndarray
     site_ids: np.ndarray
     lane_ids: np.ndarray
     site_kind: np.ndarray
 
 
 def _store_lane_flows(conn: Connection, ids: _RunIds, inst: Instance, outcome: Outcome, lane_present) -> None:
-    """Flows, reduced costs and capacity values of every lane of every period."""
-    cd, qd = ids.scaling.cost_decimals, ids.scaling.quantity_decimals
+    """Flows of the lanes that carry flow, in every period (the others carry nothing)."""
     flow = outcome.flow
     t_idx, l_idx = np.nonzero(lane_present)
     arcs = inst.lane_arc[t_idx, l_idx]
-    binding = (~inst.unlimited[arcs]) & (flow[arcs] >= inst.upper[arcs])
+    used = flow[arcs] != 0
+    t_idx, l_idx, arcs = t_idx[used], l_idx[used], arcs[used]
     _copy_figures(
-        conn, "run_flow", ["run_id", "period_id", "lane_id", "flow", "reduced_cost", "capacity_value"],
-        ids.run_id, ids.period_ids[t_idx], ids.lane_ids[l_idx],
-        [(flow[arcs], qd, None), (outcome.reduced[arcs], cd, None), (outcome.capacity_value[arcs], cd, binding)],
+        conn, "run_flow", ["run_id", "period", "lane_id", "flow"],
+        ids.run_id, ids.periods[t_idx], ids.lane_ids[l_idx],
+        [(flow[arcs], ids.scaling.quantity_decimals, None)],
     )
 
 
@@ -213,7 +221,6 @@ def _store_site_prices(conn: Connection, ids: _RunIds, inst: Instance, outcome: 
     def per_site(values, kind: ArcKind) -> np.ndarray:
         return _per_site(inst, values, kind, n_periods, n_sites)
 
-    at_capacity = (~inst.unlimited) & (flow >= inst.upper)
     kind = ids.site_kind[site_index]
     has_high, has_low = ranges.has_high[nodes], ranges.has_low[nodes]
     out_nodes = inst.site_out_node.reshape(-1)
@@ -222,13 +229,12 @@ def _store_site_prices(conn: Connection, ids: _RunIds, inst: Instance, outcome: 
         conn,
         "run_site_price",
         [
-            "run_id", "period_id", "site_id", "price", "price_low", "price_high", "low_reason",
-            "high_reason", "high_units", "throughput_flow", "throughput_value", "shortage", "spare",
-            "price_out",
+            "run_id", "period", "site_id", "price", "price_low", "price_high", "low_reason",
+            "high_reason", "high_units", "throughput_flow", "shortage", "spare", "price_out",
         ],
         [
             [str(ids.run_id)] * k,
-            list(map(str, ids.period_ids[period_index].tolist())),
+            np.char.decode(ids.periods[period_index]).tolist(),
             list(map(str, ids.site_ids[site_index].tolist())),
             decimal_text(ranges.price[nodes], cd),
             _with_nulls(decimal_text(ranges.low[nodes], cd), has_low),
@@ -238,8 +244,6 @@ def _store_site_prices(conn: Connection, ids: _RunIds, inst: Instance, outcome: 
             _with_nulls(_units_text(ranges.high_units[nodes], qd), has_high),
             _with_nulls(decimal_text(per_site(flow, ArcKind.THROUGHPUT), qd),
                         per_site(np.ones_like(flow), ArcKind.THROUGHPUT) > 0),
-            _with_nulls(decimal_text(per_site(outcome.capacity_value, ArcKind.THROUGHPUT), cd),
-                        per_site(at_capacity.astype(np.int64), ArcKind.THROUGHPUT) > 0),
             _with_nulls(decimal_text(per_site(flow, ArcKind.SHORTAGE), qd), kind == SiteKind.CUSTOMER),
             _with_nulls(decimal_text(per_site(flow, ArcKind.TO_SPARE), qd), kind == SiteKind.PLANT),
             _with_nulls(decimal_text(ranges.price[out_nodes], cd), out_nodes != nodes),
@@ -253,14 +257,12 @@ def _store_stock(conn: Connection, ids: _RunIds, inst: Instance, outcome: Outcom
     if stock_arcs.shape[0] == 0:
         return
     cd, qd = ids.scaling.cost_decimals, ids.scaling.quantity_decimals
-    flow = outcome.flow[stock_arcs]
-    full = ~inst.unlimited[stock_arcs] & (flow >= inst.upper[stock_arcs])
     _copy_figures(
-        conn, "run_stock", ["run_id", "period_id", "site_id", "stock", "holding_cost", "storage_value"],
+        conn, "run_stock", ["run_id", "period", "site_id", "stock", "holding_cost"],
         ids.run_id,
-        ids.period_ids[inst.arc_period[stock_arcs]],
+        ids.periods[inst.arc_period[stock_arcs]],
         ids.site_ids[inst.arc_ref[stock_arcs]],
-        [(flow, qd, None), (inst.cost[stock_arcs], cd, None), (outcome.capacity_value[stock_arcs], cd, full)],
+        [(outcome.flow[stock_arcs], qd, None), (inst.cost[stock_arcs], cd, None)],
     )
 
 
@@ -309,12 +311,12 @@ def _store_limits(conn: Connection, ids: _RunIds, inst: Instance, outcome: Outco
         conn,
         "run_limit",
         [
-            "run_id", "period_id", "limit_kind", "ref_id", "bound", "flow", "loosen_value", "loosen_units",
+            "run_id", "period", "limit_kind", "ref_id", "bound", "flow", "loosen_value", "loosen_units",
             "tighten_cost", "tighten_units", "tighten_blocked", "rate_low", "rate_high",
         ],
         [
             [str(ids.run_id)] * k,
-            list(map(str, ids.period_ids[np.maximum(inst.arc_period[arc], 0)].tolist())),
+            np.char.decode(ids.periods[np.maximum(inst.arc_period[arc], 0)]).tolist(),
             names.tolist(),
             list(map(str, ref_db.tolist())),
             decimal_text(bound, qd),
@@ -330,14 +332,14 @@ def _store_limits(conn: Connection, ids: _RunIds, inst: Instance, outcome: Outco
     )
 
 
-def _copy_figures(conn, table, names, run_id, period_db, ref_db, figures) -> None:
+def _copy_figures(conn, table, names, run_id, periods, ref_db, figures) -> None:
     """Binary COPY of ``(run, period, lane or site, figures...)`` rows.
 
     ``figures`` are ``(scaled integers, decimals, present or None)`` per NUMERIC column.
     """
     columns = [
         Column("int8", np.full(np.asarray(ref_db).shape[0], run_id, dtype=np.int64)),
-        Column("int4", period_db),
+        Column("text", periods),
         Column("int4", ref_db),
     ] + [Column("numeric", values, decimals, present=present) for values, decimals, present in figures]
     with conn.connection.driver_connection.cursor() as cur:

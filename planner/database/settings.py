@@ -1,4 +1,4 @@
-"""Settings kept once per database (table ``setting``, migration 0006): the currency.
+"""Settings kept once per database (table ``setting``, migration 0008): the currency.
 
 Every money figure the planner shows (costs, prices, values of capacity,
 penalties) is in one currency, named by an ISO 4217 code that is set once per

@@ -431,25 +431,25 @@ SELECT echelon, mode, units, cost FROM (
     JOIN site_version dv ON dv.batch_id = :batch_id AND dv.site_id = l.destination_id
     JOIN (VALUES ('plant', 0), ('warehouse', 1), ('customer', 2)) ok (kind, rank) ON ok.kind = ov.kind
     JOIN (VALUES ('plant', 0), ('warehouse', 1), ('customer', 2)) dk (kind, rank) ON dk.kind = dv.kind
-    WHERE f.run_id = :run_id AND f.period_id = :period_id AND f.flow > 0
+    WHERE f.run_id = :run_id AND f.period = :period AND f.flow > 0
     GROUP BY 2, 3, 4
     UNION ALL
     SELECT 2, 0, 'warehouse handling', '', sum(r.throughput_flow),
            sum(r.throughput_flow * sv.handling_cost)
     FROM run_site_price r
     JOIN site_version sv ON sv.batch_id = :batch_id AND sv.site_id = r.site_id
-    WHERE r.run_id = :run_id AND r.period_id = :period_id AND sv.handling_cost > 0
+    WHERE r.run_id = :run_id AND r.period = :period AND sv.handling_cost > 0
     HAVING count(*) > 0
     UNION ALL
     SELECT 3, 0, 'stock holding', '', sum(s.stock), sum(s.stock * s.holding_cost)
     FROM run_stock s
-    WHERE s.run_id = :run_id AND s.period_id = :period_id AND s.stock > 0
+    WHERE s.run_id = :run_id AND s.period = :period AND s.stock > 0
     HAVING count(*) > 0
     UNION ALL
     SELECT 4, 0, 'shortage penalty', '', sum(r.shortage), sum(r.shortage * d.shortage_penalty)
     FROM run_site_price r
     JOIN demand d ON d.batch_id = :batch_id AND d.period_id = :period_id AND d.site_id = r.site_id
-    WHERE r.run_id = :run_id AND r.period_id = :period_id AND r.shortage > 0
+    WHERE r.run_id = :run_id AND r.period = :period AND r.shortage > 0
     HAVING count(*) > 0
 ) parts
 ORDER BY part, stage, mode = '', mode, echelon
@@ -457,7 +457,7 @@ ORDER BY part, stage, mode = '', mode, echelon
 
 
 def _week_run(conn: Connection, period: str, run_id: int | None) -> dict | None:
-    """``run_id``, ``period_id``, ``batch_id`` of the optimal run reported on in ``period``, or None.
+    """``run_id``, ``period_id``, ``period`` (code), ``batch_id`` of the optimal run reported on in ``period``, or None.
 
     Without ``run_id``, the week's latest optimal run (decided by the
     ``latest_week_run`` view alone). A linked horizon stores no batch: each of
@@ -465,7 +465,7 @@ def _week_run(conn: Connection, period: str, run_id: int | None) -> dict | None:
     """
     row = conn.execute(
         text(
-            "SELECT r.id AS run_id, p.id AS period_id, coalesce(r.batch_id, ("
+            "SELECT r.id AS run_id, p.id AS period_id, p.code AS period, coalesce(r.batch_id, ("
             "  SELECT max(ps.batch_id) FROM period_snapshot ps JOIN load_batch b ON b.id = ps.batch_id"
             "  WHERE ps.period_id = p.id AND b.loaded_at <= r.started_at)) AS batch_id "
             "FROM solve_run r JOIN period f ON f.id = r.first_period_id JOIN period l ON l.id = r.last_period_id "

@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import time
 
-import numpy as np
 from sqlalchemy import Engine
 
 from planner.core.network import time_expand
@@ -64,7 +63,7 @@ def solve_horizon(engine: Engine, periods: list[str], scaling: Scaling = Scaling
     return store_and_summarise(
         engine, key, scaling, inst, outcome, start,
         label=f"{periods[0]}..{periods[-1]}",
-        period_ids=np.array([s.period_id for s in snaps]),
+        periods=[s.period for s in snaps],
         site_ids=merged["site_id"],
         lane_ids=merged["lane_id"],
         site_kind=merged["site_kind"],

@@ -2,14 +2,16 @@
 
 ``solve_many`` spreads independent weeks over worker processes; each week's
 run is committed by its worker as soon as it finishes, and one failing week
-does not stop the others. Each week is solved under its advisory lock, so an
+does not stop the others. Each week is solved under its week lock, so an
 explicit solve and a running ``resolve`` never work on the same week at once.
 
 ``resolve`` solves exactly the weeks whose current snapshot differs from the
-one their latest successful run used (the run's input fingerprint). A
-PostgreSQL advisory lock per week, taken with ``pg_try_advisory_lock`` and
-followed by a fresh staleness check, guarantees that several processes, on one
-machine or many, never solve the same week twice.
+one their latest successful run used (the run's input fingerprint). A lock
+per week (a row of ``planner_lock``, see :mod:`planner.database.locks`), taken
+without waiting and followed by a fresh staleness check, guarantees that
+several processes, on one machine or many, never solve the same week twice.
+Only the planner's own role can take these locks, and every wait for one is
+bounded by the lock timeout.
 """
 
 from __future__ import annotations
@@ -18,27 +20,34 @@ import os
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from concurrent.futures.process import BrokenProcessPool
 from contextlib import contextmanager
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Callable, Iterable, Iterator
 
 from sqlalchemy import Connection, Engine, text
 from sqlalchemy.exc import SQLAlchemyError
 
+from planner import __version__
+from planner.database.locks import lock_timeout, planner_lock, week_lock_name
 from planner.database.snapshot import Scaling, current_batch, run_fingerprint
-from planner.errors import PlannerError
+from planner.errors import LockTimeout, PlannerError
 from planner.runs.weekly import RunSummary, solve_period
 
-#: First key of the two-key advisory locks the planner takes (ASCII "PLAN").
-LOCK_NAMESPACE = 0x504C414E
+#: Longest stored message a resolve log line quotes.
+MESSAGE_CHARS = 240
 
 
 @dataclass(frozen=True)
 class WeekOutcome:
-    """One week of a many-week command: a run, or why there is none."""
+    """One week of a many-week command: a run, or why there is none.
+
+    ``locked`` is True when the week was not solved because another session
+    held its lock for longer than the lock timeout.
+    """
 
     period: str
     summary: RunSummary | None
     note: str = ""
+    locked: bool = False
 
     @property
     def ok(self) -> bool:
@@ -46,32 +55,40 @@ class WeekOutcome:
 
 
 @contextmanager
-def week_lock(engine: Engine, period: str, *, wait: bool = True) -> Iterator[bool]:
-    """Hold the advisory lock of ``period`` for the block; yield whether it is held.
+def week_lock(
+    engine: Engine, period: str, *, wait: bool = True, timeout: float | None = None
+) -> Iterator[bool]:
+    """Hold the lock of ``period`` for the block; yield whether it is held.
 
-    With ``wait`` the block starts once the lock is free (an explicit solve);
-    without, it starts at once and gets False when another session holds the
-    lock (``resolve`` then skips the week). Either way an explicit solve and a
-    cron re-solve never work on the same week at the same time.
+    With ``wait`` the block starts once the lock is free (an explicit solve),
+    waiting at most ``timeout`` seconds (default: the lock timeout,
+    ``PLANNER_LOCK_TIMEOUT``); without, it starts at once and gets False when
+    another session holds the lock (``resolve`` then comes back to the week).
+    Either way an explicit solve and a cron re-solve never work on the same
+    week at the same time.
+
+    Raises
+    ------
+    PlannerError
+        When the period has no snapshot.
+    LockTimeout
+        When another session held the lock for longer than ``timeout``.
     """
     with engine.connect() as conn:
-        key = {"ns": LOCK_NAMESPACE, "id": current_batch(conn, period)[0]}
-        if wait:
-            conn.execute(text("SELECT pg_advisory_lock(:ns, :id)"), key)
-            held = True
-        else:
-            held = conn.execute(text("SELECT pg_try_advisory_lock(:ns, :id)"), key).scalar_one()
-        conn.commit()
-        try:
-            yield held
-        finally:
-            if held:
-                conn.execute(text("SELECT pg_advisory_unlock(:ns, :id)"), key)
-                conn.commit()
+        current_batch(conn, period)  # an unknown week is refused before it gets a lock row
+    with planner_lock(
+        engine,
+        week_lock_name(period),
+        what=f"week {period}",
+        advice="let that solve finish and solve the week again",
+        wait=wait,
+        timeout=timeout,
+    ) as held:
+        yield held
 
 
 def solve_locked(engine: Engine, period: str, scaling: Scaling) -> RunSummary:
-    """:func:`~planner.runs.solve_period` under the week's advisory lock."""
+    """:func:`~planner.runs.solve_period` under the week's lock (waiting at most the lock timeout)."""
     with week_lock(engine, period):
         return solve_period(engine, period, scaling)
 
@@ -143,7 +160,7 @@ def _guarded(call: Callable[[], RunSummary], period: str) -> WeekOutcome:
         return WeekOutcome(period, call())
     except (PlannerError, SQLAlchemyError, BrokenProcessPool) as err:
         note = str(err) if isinstance(err, PlannerError) else f"{type(err).__name__}: {err}"
-        return WeekOutcome(period, None, note)
+        return WeekOutcome(period, None, note, locked=isinstance(err, LockTimeout))
 
 
 def is_stale(conn: Connection, period: str, scaling: Scaling) -> tuple[bool, str]:
@@ -151,8 +168,12 @@ def is_stale(conn: Connection, period: str, scaling: Scaling) -> tuple[bool, str
 
     A week is stale when its latest optimal run used another input
     fingerprint, or it has none. A week whose current input already ended
-    infeasible or unbounded is not stale: solving the same input again gives
-    the same verdict.
+    infeasible or unbounded, or failed under this version of the planner, is
+    not stale: solving the same input again gives the same verdict. A run is
+    stored as failed only for what the input and the planner decide (a figure
+    with more decimals than the precision, sums past 64 bits, a certificate
+    that does not hold); a lost connection stores no run, so its week stays
+    stale. A failure stored by another planner version is tried again.
     """
     _, _, snapshot_fp = current_batch(conn, period)
     fingerprint = run_fingerprint(snapshot_fp, scaling)
@@ -160,23 +181,43 @@ def is_stale(conn: Connection, period: str, scaling: Scaling) -> tuple[bool, str
         text("SELECT run_id, finished_at, input_fingerprint FROM latest_week_run WHERE period = :period"),
         {"period": period},
     ).first()
-    failed = conn.execute(
+    settled = conn.execute(
         text(
-            "SELECT r.id, r.status FROM solve_run r JOIN period p ON p.id = r.period_id "
+            "SELECT r.id, r.status, r.message FROM solve_run r JOIN period p ON p.id = r.period_id "
             "WHERE p.code = :period AND r.kind = 'week' AND r.input_fingerprint = :fp "
-            "AND r.status IN ('infeasible', 'unbounded') "
+            "AND (r.status IN ('infeasible', 'unbounded') OR (r.status = 'failed' AND r.planner_version = :version)) "
             "AND (CAST(:since AS timestamptz) IS NULL OR r.finished_at > :since) "
             "ORDER BY r.finished_at DESC, r.id DESC LIMIT 1"
         ),
-        {"period": period, "fp": fingerprint, "since": None if latest is None else latest.finished_at},
+        {
+            "period": period,
+            "fp": fingerprint,
+            "version": __version__,
+            "since": None if latest is None else latest.finished_at,
+        },
     ).first()
-    if failed is not None:
-        return False, f"input unchanged since run {failed.id}, which was {failed.status}"
+    if settled is not None:
+        verdict = "failed" if settled.status == "failed" else f"was {settled.status}"
+        return False, f"input unchanged since run {settled.id}, which {verdict}: {brief(settled.message)}"
     if latest is None:
         return True, "never solved"
     if latest.input_fingerprint != fingerprint:
         return True, f"input changed since run {latest.run_id}"
     return False, f"up to date (run {latest.run_id})"
+
+
+def brief(message: str | None) -> str:
+    """A stored message on one line, cut to :data:`MESSAGE_CHARS`.
+
+    Examples
+    --------
+    >>> brief("week 2026-W49 is infeasible:   30 units  short")
+    'week 2026-W49 is infeasible: 30 units short'
+    >>> len(brief("x" * 1000)) == MESSAGE_CHARS
+    True
+    """
+    line = " ".join((message or "no message stored").split())
+    return line if len(line) <= MESSAGE_CHARS else line[: MESSAGE_CHARS - 3] + "..."
 
 
 def stale_periods(engine: Engine, scaling: Scaling = Scaling()) -> list[tuple[str, str]]:
@@ -192,48 +233,115 @@ def stale_periods(engine: Engine, scaling: Scaling = Scaling()) -> list[tuple[st
         return out
 
 
+@dataclass
+class ResolveReport:
+    """What one ``resolve`` did.
+
+    Attributes
+    ----------
+    timeout : float
+        Seconds it waited at most for a week's lock.
+    outcomes : list of WeekOutcome
+        The weeks this process solved or tried to.
+    unchanged : list of str
+        Weeks skipped because their input had not changed.
+    solved_elsewhere : list of str
+        Weeks another process solved while this one looked at them.
+    locked : list of str
+        Weeks not solved because another session held their lock for longer than ``timeout``.
+    """
+
+    timeout: float
+    outcomes: list[WeekOutcome] = field(default_factory=list)
+    unchanged: list[str] = field(default_factory=list)
+    solved_elsewhere: list[str] = field(default_factory=list)
+    locked: list[str] = field(default_factory=list)
+
+    def summary(self) -> str:
+        """The closing log line: counts, and the weeks that need a look."""
+        bad = [o.period for o in self.outcomes if not o.ok]
+        parts = [f"{len(self.outcomes)} solved" + (f" ({len(bad)} not optimal: {', '.join(bad)})" if bad else "")]
+        if self.unchanged:
+            parts.append(f"{len(self.unchanged)} unchanged")
+        if self.solved_elsewhere:
+            parts.append(f"{len(self.solved_elsewhere)} solved by another process ({', '.join(self.solved_elsewhere)})")
+        if self.locked:
+            parts.append(
+                f"{len(self.locked)} not solved because another session held the lock for more than "
+                f"{self.timeout:g} s ({', '.join(self.locked)}); run resolve again once it is released"
+            )
+        return "resolve: " + ", ".join(parts)
+
+
 def resolve(
     engine: Engine,
     scaling: Scaling = Scaling(),
     *,
     log: Callable[[str], None] = print,
-) -> list[WeekOutcome]:
+    timeout: float | None = None,
+) -> ResolveReport:
     """Solve every stale week exactly once, sharing the work with other processes.
 
-    For each stale week: take its advisory lock without waiting (another
-    process holding it is solving that week: skip it), check again that it is
+    For each stale week: take its lock without waiting, check again that it is
     still stale (another process may have just finished it), solve, commit,
-    release. Logs one line per week.
+    release. A week whose lock another session holds is put off; once the
+    other weeks are done, ``resolve`` waits for each such lock, at most
+    ``timeout`` seconds, and looks again: normally the other process has solved
+    the week by then, and otherwise it is solved here. A week whose lock stays
+    held for longer is not solved and is listed in the report's ``locked``.
 
-    Returns
-    -------
-    list of WeekOutcome
-        Only the weeks this process solved or tried to.
+    Logs one line per week, then :meth:`ResolveReport.summary`.
+
+    Parameters
+    ----------
+    timeout : float, optional
+        Seconds; default the lock timeout (``PLANNER_LOCK_TIMEOUT``, 60).
     """
     from planner.database.snapshot import loaded_periods
 
+    report = ResolveReport(timeout=lock_timeout() if timeout is None else timeout)
     with engine.connect() as conn:
         weeks = [(p, *is_stale(conn, p, scaling)) for p in loaded_periods(conn)]
-    done: list[WeekOutcome] = []
+    busy = []
     for period, stale, why in weeks:
         if not stale:
             log(f"{period} skipped: {why}")
+            report.unchanged.append(period)
             continue
         with week_lock(engine, period, wait=False) as held:
-            if not held:
-                log(f"{period} skipped: being solved by another process")
-                continue
-            with engine.connect() as conn:
-                stale, why = is_stale(conn, period, scaling)
-            if not stale:
-                log(f"{period} skipped: {why}")
-                continue
-            outcome = _guarded(lambda: solve_period(engine, period, scaling), period)
-            done.append(outcome)
-            s = outcome.summary
-            if s is None:
-                log(f"{period} failed: {outcome.note}")
+            if held:
+                _solve_if_stale(engine, period, scaling, log, report)
             else:
-                cost = "-" if s.cost is None else f"{s.cost:.2f}"
-                log(f"{period} {s.status} run {s.run_id} cost {cost} ({why}) {s.seconds['total']:.2f}s")
-    return done
+                busy.append(period)
+    for period in busy:
+        try:
+            with week_lock(engine, period, timeout=report.timeout):
+                _solve_if_stale(engine, period, scaling, log, report)
+        except LockTimeout as err:
+            holder = "" if err.holder is None else f" ({err.holder})"
+            log(f"{period} skipped: locked by another session{holder} for more than {report.timeout:g} s")
+            report.locked.append(period)
+    log(report.summary())
+    return report
+
+
+def _solve_if_stale(
+    engine: Engine, period: str, scaling: Scaling, log: Callable[[str], None], report: ResolveReport
+) -> None:
+    """Under the week's lock: solve ``period`` if it is still stale, and log what happened."""
+    with engine.connect() as conn:
+        stale, why = is_stale(conn, period, scaling)
+    if not stale:
+        # It was stale when resolve began: another process has solved it since.
+        log(f"{period} skipped: being solved by another process; {why}")
+        report.solved_elsewhere.append(period)
+        return
+    outcome = _guarded(lambda: solve_period(engine, period, scaling), period)
+    report.outcomes.append(outcome)
+    s = outcome.summary
+    if s is None:
+        log(f"{period} failed: {brief(outcome.note)}")
+        return
+    cost = "-" if s.cost is None else f"{s.cost:.2f}"
+    line = f"{period} {s.status} run {s.run_id} cost {cost} ({why}) {s.seconds['total']:.2f}s"
+    log(line if s.ok else f"{line}: {brief(s.message)}")

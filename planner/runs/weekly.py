@@ -17,6 +17,7 @@ from sqlalchemy import Engine, text
 
 from planner.core.network import assemble_instance
 from planner.core.optimize import FAILED, Outcome, optimize, shortage_units
+from planner.database.history import ensure_partitions
 from planner.database.results import RunKey, insert_run, store_results, to_decimal
 from planner.database.snapshot import (
     Scaling,
@@ -124,7 +125,7 @@ def solve_period(engine: Engine, period: str, scaling: Scaling = Scaling()) -> R
     if snapshot is None:
         return store_and_summarise(
             engine, key, scaling, None, failure, start, label=period,
-            period_ids=None, site_ids=None, lane_ids=None, site_kind=None,
+            periods=None, site_ids=None, lane_ids=None, site_kind=None,
         )
     try:
         inst, outcome = solve_snapshot(snapshot, scaling)
@@ -133,7 +134,7 @@ def solve_period(engine: Engine, period: str, scaling: Scaling = Scaling()) -> R
     return store_and_summarise(
         engine, key, scaling, inst, outcome, start,
         label=period,
-        period_ids=np.array([snapshot.period_id]),
+        periods=[snapshot.period],
         site_ids=snapshot.site_id,
         lane_ids=snapshot.lane_id,
         site_kind=snapshot.week.site_kind,
@@ -142,16 +143,19 @@ def solve_period(engine: Engine, period: str, scaling: Scaling = Scaling()) -> R
 
 def store_and_summarise(
     engine: Engine, key: RunKey, scaling: Scaling, inst, outcome: Outcome, start: float, *,
-    label: str, period_ids, site_ids, lane_ids, site_kind, lane_present=None,
+    label: str, periods, site_ids, lane_ids, site_kind, lane_present=None,
 ) -> RunSummary:
     """Store a run (row, flows, prices, stock) in one transaction and summarise it."""
     t_solve = time.perf_counter()
+    if outcome.ok:
+        with engine.begin() as conn:
+            ensure_partitions(conn, periods)
     with engine.begin() as conn:
         run_id = insert_run(conn, key, scaling, inst, outcome, t_solve - start)
         if outcome.ok:
             store_results(
                 conn, run_id, inst, outcome, scaling,
-                period_ids=period_ids, site_ids=site_ids, lane_ids=lane_ids,
+                periods=periods, site_ids=site_ids, lane_ids=lane_ids,
                 site_kind=site_kind, lane_present=lane_present,
             )
         t_store = time.perf_counter()

@@ -7,9 +7,9 @@
   user sets it (``planner currency EUR``): the planner never guesses a
   currency.
 
-Revision ID: 0006
-Revises: 0005
-Create Date: 2026-12-03
+Revision ID: 0008
+Revises: 0007
+Create Date: 2026-12-05
 """
 
 from collections.abc import Sequence
@@ -17,8 +17,8 @@ from collections.abc import Sequence
 import sqlalchemy as sa
 from alembic import op
 
-revision: str = "0006"
-down_revision: str | Sequence[str] | None = "0005"
+revision: str = "0008"
+down_revision: str | Sequence[str] | None = "0007"
 branch_labels: str | Sequence[str] | None = None
 depends_on: str | Sequence[str] | None = None
 
