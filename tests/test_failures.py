@@ -187,3 +187,52 @@ def test_the_failure_mapping_knows_a_lost_connection() -> None:
 def test_python_m_planner_is_the_same_program() -> None:
     done = subprocess.run([sys.executable, "-m", "planner.cli", "--version"], capture_output=True, text=True, check=False)
     assert done.returncode == 0 and done.stdout.startswith("planner ")
+
+
+def _result_counts(engine: sa.Engine) -> dict[str, int]:
+    tables = ("solve_run", "run_flow", "run_site_price", "run_stock", "run_limit")
+    with engine.connect() as conn:
+        return {t: conn.execute(sa.text(f"SELECT count(*) FROM {t}")).scalar_one() for t in tables}
+
+
+def test_a_connection_lost_while_a_run_is_stored_is_reported_and_nothing_is_stored(
+    database_url: str, engine: sa.Engine, write_folder, network_files
+) -> None:
+    # The test holds a lock the store needs, so the planner's store transaction
+    # is seen waiting (run row inserted, results not yet); then its backend is
+    # terminated, as an administrator or a failover would.
+    assert invoke("load", str(write_folder(network_files))).exit_code == 0
+    before = _result_counts(engine)
+    database = make_url(database_url).database
+    env = dict(os.environ, PLANNER_LOCK_TIMEOUT="120")
+    with psycopg.connect(with_url(database_url)) as blocker, psycopg.connect(with_url(database_url), autocommit=True) as admin:
+        blocker.execute("LOCK TABLE run_site_price IN ACCESS EXCLUSIVE MODE")
+        process = subprocess.Popen(
+            [*PLANNER, "solve", "--period", "2026-W40"], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env,
+        )
+        terminated, deadline = False, time.monotonic() + 120
+        while process.poll() is None and time.monotonic() < deadline:
+            row = admin.execute(
+                "SELECT a.pid, a.query FROM pg_stat_activity a WHERE a.datname = %s AND a.wait_event_type = 'Lock' "
+                "AND %s = ANY(pg_blocking_pids(a.pid))",
+                [database, blocker.info.backend_pid],
+            ).fetchone()
+            if row is not None:
+                assert row[1].startswith("COPY run_site_price"), row[1]  # inside the store, after the run row
+                terminated = admin.execute("SELECT pg_terminate_backend(%s)", [row[0]]).fetchone()[0]
+                break
+            time.sleep(0.02)
+        blocker.rollback()
+        out, err = process.communicate(timeout=120)
+    assert terminated, f"the solve ended before its store was seen waiting: {out} {err}"
+    result = subprocess.CompletedProcess(process.args, process.returncode, out, err)
+    assert result.returncode == DATABASE_DOWN, err
+    assert "Traceback" not in err
+    lines = err.strip().splitlines()
+    assert len(lines) == 2, lines
+    assert lines[0].startswith("2026-W40: error: the connection to postgresql://") and "was lost during the command" in lines[0]
+    assert lines[1].startswith("try: nothing of those weeks was stored")
+    assert _result_counts(engine) == before  # one transaction: no run row, no half-stored results
+    again = planner("solve", "--period", "2026-W40")
+    assert again.returncode == 0, again.stderr
+    assert _result_counts(engine)["solve_run"] == before["solve_run"] + 1

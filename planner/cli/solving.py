@@ -11,11 +11,13 @@ from rich.table import Column, Table
 from planner.cli.common import (
     COST_DECIMALS,
     DATABASE_URL,
+    EXIT_DATABASE,
     EXIT_LOCKED,
     EXIT_NOT_OPTIMAL,
     QUANTITY_DECIMALS,
     app,
     certificate_text,
+    connection_failure,
     console,
     database_target,
     engine,
@@ -74,8 +76,9 @@ def solve(
 def _solve_weeks(url: str, chosen: list[str], scaling, workers: Optional[int]) -> None:
     """Solve ``chosen`` weeks in parallel with a progress bar; print a summary.
 
-    Exits 4 when a week's lock was held by another session for longer than the
-    lock timeout, else 1 when a week did not end optimal.
+    Exits 3 when the database could not be reached or the connection was lost
+    for a week, else 4 when a week's lock was held by another session for
+    longer than the lock timeout, else 1 when a week did not end optimal.
     """
     from rich.progress import (
         BarColumn,
@@ -98,8 +101,16 @@ def _solve_weeks(url: str, chosen: list[str], scaling, workers: Optional[int]) -
     _summary_table([o.summary for o in outcomes if o.summary is not None], title=None)
     for o in outcomes:
         message = o.note if o.summary is None else o.summary.message
+        if o.lost is not None:
+            message = "error: " + connection_failure(o.lost, url)[0][0]
         if message:
             err_console.print(f"{o.period}: {message}", markup=False, highlight=False, soft_wrap=True)
+    if any(o.lost is not None for o in outcomes):
+        err_console.print(
+            "try: nothing of those weeks was stored (each run is one transaction); check the server, then solve them again",
+            markup=False, highlight=False, soft_wrap=True,
+        )
+        raise typer.Exit(EXIT_DATABASE)
     if any(o.locked for o in outcomes):
         raise typer.Exit(EXIT_LOCKED)
     if any(not o.ok for o in outcomes):
@@ -129,7 +140,8 @@ def resolve(
 
     Solves exactly the weeks whose input changed since their latest optimal run.
     Safe to run from several processes or machines at once: a week is never
-    solved twice. One log line per week and a summary line; exit 4 if a week
+    solved twice. One log line per week and a summary line; exit 3 if the
+    connection to the database was lost for a week, else 4 if a week
     was left unsolved because another session held its lock for longer than
     the lock timeout ($PLANNER_LOCK_TIMEOUT, 60 s), else 1 if a week solved
     ended non-optimal.
@@ -155,6 +167,8 @@ def resolve(
             print("nothing to solve: every loaded week is up to date")
         return
     report = resolve_weeks(db_engine, scaling, log=lambda line: print(line, flush=True))
+    if any(o.lost is not None for o in report.outcomes):
+        raise typer.Exit(EXIT_DATABASE)
     if report.locked:
         raise typer.Exit(EXIT_LOCKED)
     if any(not o.ok for o in report.outcomes):
