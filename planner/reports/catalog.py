@@ -249,7 +249,7 @@ SELECT r.id AS run_id, r.kind,
                        WHERE ps.period_id = p.id AND lb.loaded_at <= r.started_at) AS b
                FROM period p WHERE p.starts_on BETWEEN f.starts_on AND l.starts_on) batches
        )) AS batch,
-       r.finished_at AS solved_at, r.total_seconds AS seconds,
+       r.finished_at AS solved_at, round(r.total_seconds::numeric, 3) AS seconds,
        (lw.run_id IS NOT NULL OR lh.id IS NOT NULL) AS latest,
        f.code AS first_period, l.code AS last_period, coalesce(r.message, '') AS message
 FROM solve_run r
