@@ -98,9 +98,11 @@ def test_legend_names_only_what_is_drawn() -> None:
     assert labels == ["plant", "customer", "lane in use (width: flow)"]
     history = pd.DataFrame({"site": ["C1"] * 2, "period": ["2026-W45", "2026-W46"], "price": [D(5), D(6)],
                             "price_low": [D(5), D(6)], "price_high": [D(5), D(6)], "degenerate": [False, False]})
-    price_labels = legend_labels(price_figure(history, currency="EUR"))
-    assert price_labels == ["price", "[price low, price high]"]
+    # Every range has no width: no band is drawn, so the legend does not name one.
+    assert legend_labels(price_figure(history, currency="EUR")) == ["price"]
     assert price_figure(history, currency="EUR").axes[0].get_ylabel() == "price per unit (EUR)"
+    wide = history.assign(price_low=[D(4), D(6)], price_high=[D(6), D(6)], degenerate=[True, False])
+    assert legend_labels(price_figure(wide)) == ["price", "[price low, price high]", "degenerate: price not unique"]
 
 
 def test_site_labels_never_overlap_and_are_thinned_when_crowded() -> None:

@@ -122,7 +122,10 @@ def price_figure(history: pd.DataFrame, *, title: str | None = None, currency: s
     axes.grid(axis="y", alpha=0.3)
     site = str(sites[0]) if len(sites) else ""
     axes.set_title(title or f"{site}: price per unit")
-    axes.legend(handles=_price_legend(open_ended.any(), degenerate.any()), loc="best", fontsize=8, framealpha=0.9)
+    # A range is drawn only where it has a width (an open bound always has one).
+    any_range = bool((open_ended | (high > low)).any())
+    axes.legend(handles=_price_legend(any_range, open_ended.any(), degenerate.any()), loc="best", fontsize=8,
+                framealpha=0.9)
     figure.tight_layout()
     return figure
 
@@ -144,11 +147,11 @@ def _draw_ranges(axes, x, low, high, bottom: float, top: float) -> np.ndarray:
     return open_ended
 
 
-def _price_legend(any_open: bool, any_degenerate: bool) -> list:
-    handles = [
-        Line2D([], [], color="#08519c", marker="o", markersize=4, label="price"),
-        Patch(facecolor="#9ecae1", alpha=0.6, label="[price low, price high]"),
-    ]
+def _price_legend(any_range: bool, any_open: bool, any_degenerate: bool) -> list:
+    """Legend entries for what is drawn only: the range band only where some week's range has a width."""
+    handles = [Line2D([], [], color="#08519c", marker="o", markersize=4, label="price")]
+    if any_range:
+        handles.append(Patch(facecolor="#9ecae1", alpha=0.6, label="[price low, price high]"))
     if any_degenerate:
         handles.append(
             Line2D([], [], color="none", marker="D", markerfacecolor="none", markeredgecolor="#e6550d",
