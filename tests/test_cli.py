@@ -425,3 +425,59 @@ def test_powerco_textbook_example_end_to_end_through_the_installed_script(engine
             assert float(stored) == pytest.approx(demand_dual[j] + supply_dual[i], abs=1e-9), (i, j)
     # Balanced: one more unit cannot be had anywhere, so no price_high is stored.
     assert highs_missing == 7
+
+
+# --------------------------------------------------------------------------- help text
+
+
+def all_commands() -> list[list[str]]:
+    """Every command, sub-commands of groups included, in the order ``planner --help`` lists them."""
+    import typer.main
+
+    group = typer.main.get_command(app)
+    found = []
+    for name in group.list_commands(None):
+        command = group.get_command(None, name)
+        subs = getattr(command, "list_commands", None)
+        found += [[name, sub] for sub in subs(None)] if subs else [[name]]
+    return found
+
+
+def test_help_lists_the_commands_in_the_order_of_the_workflow_and_shows_the_version() -> None:
+    from planner import __version__
+
+    top = invoke("--help")
+    listed = re.findall(r"^  ([a-z-]+)  ", top.stdout.split("Commands:", 1)[1], flags=re.M)
+    # The order of the work (common practice, no source): set up, load, solve, look at the runs, then tools.
+    assert listed[:12] == ["init", "currency", "load", "periods", "solve", "resolve", "runs", "certificate",
+                           "report", "explain", "prices", "rate-ranges"]
+    assert listed[-1] == "demo"
+    assert invoke("--version").stdout == f"planner {__version__}\n"
+
+
+@pytest.mark.parametrize("command", all_commands(), ids=" ".join)
+def test_each_help_text_is_plain_and_its_example_uses_the_demo_s_own_codes(command: list[str]) -> None:
+    result = invoke(*command, "--help")
+    assert result.exit_code == 0, result.output
+    out = result.stdout
+    assert "<bool>" not in out and "<str>" not in out and "<int>" not in out and "{" not in out.split("Options")[0]
+    assert not any(line != line.rstrip() for line in out.splitlines()), "trailing spaces"
+    assert not re.search(r"\S  +[.,;:]|\s[.,;]\s", out), "a stray space before punctuation"
+    usage = out.splitlines()[0]
+    arguments = re.findall(r"\[?([A-Za-z_]+)\]?", usage.split("[OPTIONS]", 1)[1]) if "[OPTIONS]" in usage else []
+    assert all(a.isupper() for a in arguments), usage
+    examples = re.findall(r"Example: (planner .*)", out)
+    assert examples and all(e.startswith("planner " + " ".join(command)) for e in examples), examples
+    # Site codes and weeks in the example exist in the demo network (seeds/ is kept equal to it).
+    seeds = Path(__file__).resolve().parents[1] / "seeds"
+    sites = {line.split(",")[0] for line in (seeds / "sites.csv").read_text().splitlines()[1:]}
+    weeks = {line.split(",")[0] for line in (seeds / "demand.csv").read_text().splitlines()[1:]}
+    for example in examples:
+        assert set(re.findall(r"(?<![-\w])[PWC]\d+\b", example)) <= sites, example
+        assert set(re.findall(r"\b\d{4}-W\d{2}\b", example)) <= weeks, example
+
+
+def test_resolve_dry_run_on_an_empty_database_says_nothing_is_loaded(engine) -> None:
+    result = invoke("resolve", "--dry-run")
+    assert result.exit_code == 0, result.output
+    assert result.stdout == "nothing is loaded yet, so nothing would be solved; load a folder with `planner load DIR`\n"
