@@ -145,6 +145,10 @@ def test_solve_one_period_prints_the_run_table(engine, write_folder, network_fil
         run_id, cost = conn.execute(text("SELECT id, primal_cost FROM solve_run")).one()
     assert re.search(rf"\b{run_id}\b", row)
     assert "optimal" in row and f"{cost:,.2f}" in row and "exact" in row
+    assert "cost (XXX)" in result.stdout  # no currency set yet: ISO 4217's "no currency"
+    assert invoke("currency", "EUR").exit_code == 0
+    again = invoke("solve", "--period", "2026-W41")
+    assert again.exit_code == 0 and "cost (EUR)" in again.stdout
 
 
 @pytest.mark.parametrize(

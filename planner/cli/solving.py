@@ -49,6 +49,7 @@ def solve(
 
     Example: planner solve --period 2026-W49
     """
+    from planner.database.settings import currency
     from planner.database.snapshot import Scaling
     from planner.periods import parse_week_span
     from planner.runs.horizon import solve_horizon
@@ -63,17 +64,17 @@ def solve(
         scaling = Scaling(cost_decimals, quantity_decimals)
         if horizon is not None:
             summary = solve_horizon(db_engine, parse_week_span(horizon), scaling)
-            _summary_table([summary], title="Linked horizon")
+            _summary_table([summary], title="Linked horizon", code=currency(db_engine))
             if summary.message:
                 err_console.print(summary.message, markup=False, highlight=False, soft_wrap=True)
             raise typer.Exit(0 if summary.ok else EXIT_NOT_OPTIMAL)
         chosen = select_periods(db_engine, period=period, all_periods=all_periods, first=first, last=last)
     except ValueError as err:
         raise PlannerError(str(err)) from err
-    _solve_weeks(url, chosen, scaling, workers)
+    _solve_weeks(url, chosen, scaling, workers, currency(db_engine))
 
 
-def _solve_weeks(url: str, chosen: list[str], scaling, workers: Optional[int]) -> None:
+def _solve_weeks(url: str, chosen: list[str], scaling, workers: Optional[int], code: str) -> None:
     """Solve ``chosen`` weeks in parallel with a progress bar; print a summary.
 
     Exits 3 when the database could not be reached or the connection was lost
@@ -98,7 +99,7 @@ def _solve_weeks(url: str, chosen: list[str], scaling, workers: Optional[int]) -
         outcomes = solve_many(
             url, chosen, scaling, workers=workers, on_done=lambda _o: progress.advance(task)
         )
-    _summary_table([o.summary for o in outcomes if o.summary is not None], title=None)
+    _summary_table([o.summary for o in outcomes if o.summary is not None], title=None, code=code)
     for o in outcomes:
         message = o.note if o.summary is None else o.summary.message
         if o.lost is not None:
@@ -117,8 +118,8 @@ def _solve_weeks(url: str, chosen: list[str], scaling, workers: Optional[int]) -
         raise typer.Exit(EXIT_NOT_OPTIMAL)
 
 
-def _summary_table(summaries, title) -> None:
-    table = Table("run", "status", "cost", "shortage", "certificate", "seconds", title=title)
+def _summary_table(summaries, title, code: str) -> None:
+    table = Table("run", "status", f"cost ({code})", "shortage", "certificate", "seconds", title=title)
     table.columns.insert(0, Column("period", no_wrap=True))
     for s in summaries:
         table.add_row(
