@@ -12,7 +12,7 @@ from __future__ import annotations
 from collections.abc import Iterable
 from dataclasses import dataclass
 
-__all__ = ["LockTimeout", "PlannerError", "Problem", "ValidationError"]
+__all__ = ["DatabaseUnavailable", "LockTimeout", "NotOptimal", "PlannerError", "Problem", "ValidationError"]
 
 
 class PlannerError(Exception):
@@ -22,6 +22,30 @@ class PlannerError(Exception):
     --------
     >>> str(PlannerError("PLANNER_DATABASE_URL is not a PostgreSQL URL"))
     'PLANNER_DATABASE_URL is not a PostgreSQL URL'
+    """
+
+
+class DatabaseUnavailable(PlannerError):
+    """The database cannot be reached or started; the message says where and what to try.
+
+    The command line exits with its own code for it (3), apart from bad input (2).
+
+    Examples
+    --------
+    >>> isinstance(DatabaseUnavailable("the embedded server did not start"), PlannerError)
+    True
+    """
+
+
+class NotOptimal(PlannerError):
+    """A command was asked about a run that did not end optimal; the message gives its status and why.
+
+    The command line exits 1 for it, as for a solve that did not end optimal.
+
+    Examples
+    --------
+    >>> str(NotOptimal("run 7 (2026-W50) ended infeasible: customer C17 cannot be served"))
+    'run 7 (2026-W50) ended infeasible: customer C17 cannot be served'
     """
 
 

@@ -26,6 +26,7 @@ from typer.testing import CliRunner
 
 from planner.cli import app
 from planner.database.connect import DATABASE_URL_ENV
+from planner.database.migrate import head_revision
 from planner.runs.demo import price_movers
 
 runner = CliRunner()
@@ -71,7 +72,8 @@ def test_init_creates_the_schema_on_an_empty_database_and_is_idempotent(test_ser
     try:
         first = invoke("init", "--database-url", target)
         assert first.exit_code == 0, first.output
-        assert "schema is up to date on" in first.stdout and name in first.stdout
+        assert f"created the schema (revision {head_revision()}) on postgresql://" in first.stdout
+        assert name in first.stdout
         with psycopg.connect(target_url.set(drivername="postgresql").render_as_string(hide_password=False)) as conn:
             tables = {r[0] for r in conn.execute("SELECT tablename FROM pg_tables WHERE schemaname = 'public'")}
             views = {r[0] for r in conn.execute("SELECT viewname FROM pg_views WHERE schemaname = 'public'")}
@@ -79,6 +81,7 @@ def test_init_creates_the_schema_on_an_empty_database_and_is_idempotent(test_ser
         assert "site_price_history" in views
         again = invoke("init", "--database-url", target)
         assert again.exit_code == 0, again.output
+        assert f"schema already up to date (revision {head_revision()})" in again.stdout
     finally:
         with psycopg.connect(admin, autocommit=True) as conn:
             conn.execute(sql.SQL("DROP DATABASE IF EXISTS {} WITH (FORCE)").format(sql.Identifier(name)))
@@ -142,17 +145,28 @@ def test_solve_one_period_prints_the_run_table(engine, write_folder, network_fil
         run_id, cost = conn.execute(text("SELECT id, primal_cost FROM solve_run")).one()
     assert re.search(rf"\b{run_id}\b", row)
     assert "optimal" in row and f"{cost:,.2f}" in row and "exact" in row
+    assert "cost (XXX)" in result.stdout  # no currency set yet: ISO 4217's "no currency"
+    assert invoke("currency", "EUR").exit_code == 0
+    again = invoke("solve", "--period", "2026-W41")
+    assert again.exit_code == 0 and "cost (EUR)" in again.stdout
 
 
 @pytest.mark.parametrize(
     "options",
-    [pytest.param([], id="no-selection"), pytest.param(["--period", "2026-W40", "--all"], id="two-selections")],
+    [
+        pytest.param([], id="no-selection"),
+        pytest.param(["--period", "2026-W40", "--all"], id="two-selections"),
+        pytest.param(["--period", "2026-W40", "--horizon", "2026-W40..2026-W41"], id="week-and-horizon"),
+    ],
 )
 def test_solve_without_exactly_one_period_selection_is_a_usage_error(engine, write_folder, network_files, options):
     assert invoke("load", str(write_folder(network_files))).exit_code == 0
     result = invoke("solve", *options)
     assert result.exit_code == 2
-    assert "choose exactly one of --period P, --all, or --from A/--to B" in result.stderr
+    assert (
+        "choose exactly one of --period WEEK, --all, --from WEEK/--to WEEK, or --horizon FIRST..LAST"
+        in result.stderr
+    )
     assert table_counts(engine, ("solve_run",)) == {"solve_run": 0}
 
 
@@ -175,7 +189,8 @@ def test_certificate_of_a_period_shows_exact(engine, write_folder, network_files
     assert Decimal(lines["difference"]) == 0
     assert lines["max conservation violation (units)"] == "0"
     missing = invoke("certificate", "--period", "2026-W40")
-    assert missing.exit_code == 2 and "no such run" in missing.stderr
+    assert missing.exit_code == 2
+    assert "2026-W40 is loaded but not solved yet; solve it with `planner solve --period 2026-W40`" in missing.stderr
 
 
 def test_periods_lists_loaded_weeks_and_their_latest_run(engine, write_folder, network_files):
@@ -293,10 +308,12 @@ def test_demo_solves_every_week_prints_costs_movers_and_a_psql_line_without_pass
     mover_lines = [line for line in lines if re.search(r"│\s*(C|W|P)\d+\s*│", line)]
     assert [re.search(r"│\s*(\S+)", line).group(1) for line in mover_lines] == [m["site"] for m in movers]
 
-    psql = next(line.strip() for line in lines if line.strip().startswith("psql "))
+    # The last lines advise what works after the command has ended.
+    assert any("planner sql" in line for line in lines)
+    psql = next(line.strip() for line in lines if "psql '" in line)
     server = make_url(database_url)
-    assert psql.startswith("psql 'postgresql://postgres")
-    assert psql.endswith(f"@{server.host}:{server.port}/{server.database}'")
+    assert psql.endswith(f"psql 'postgresql://postgres@{server.host}:{server.port}/{server.database}'")
+    assert "planner server start" not in result.stdout  # not the embedded server: nothing to keep up
 
 
 def test_demo_flows_reproduce_the_stored_cost_exactly_in_sql(engine, tmp_path):
@@ -412,3 +429,59 @@ def test_powerco_textbook_example_end_to_end_through_the_installed_script(engine
             assert float(stored) == pytest.approx(demand_dual[j] + supply_dual[i], abs=1e-9), (i, j)
     # Balanced: one more unit cannot be had anywhere, so no price_high is stored.
     assert highs_missing == 7
+
+
+# --------------------------------------------------------------------------- help text
+
+
+def all_commands() -> list[list[str]]:
+    """Every command, sub-commands of groups included, in the order ``planner --help`` lists them."""
+    import typer.main
+
+    group = typer.main.get_command(app)
+    found = []
+    for name in group.list_commands(None):
+        command = group.get_command(None, name)
+        subs = getattr(command, "list_commands", None)
+        found += [[name, sub] for sub in subs(None)] if subs else [[name]]
+    return found
+
+
+def test_help_lists_the_commands_in_the_order_of_the_workflow_and_shows_the_version() -> None:
+    from planner import __version__
+
+    top = invoke("--help")
+    listed = re.findall(r"^  ([a-z-]+)  ", top.stdout.split("Commands:", 1)[1], flags=re.M)
+    # The order of the work (common practice, no source): set up, load, solve, look at the runs, then tools.
+    assert listed[:12] == ["init", "currency", "load", "periods", "solve", "resolve", "runs", "certificate",
+                           "report", "explain", "prices", "rate-ranges"]
+    assert listed[-1] == "demo"
+    assert invoke("--version").stdout == f"planner {__version__}\n"
+
+
+@pytest.mark.parametrize("command", all_commands(), ids=" ".join)
+def test_each_help_text_is_plain_and_its_example_uses_the_demo_s_own_codes(command: list[str]) -> None:
+    result = invoke(*command, "--help")
+    assert result.exit_code == 0, result.output
+    out = result.stdout
+    assert "<bool>" not in out and "<str>" not in out and "<int>" not in out and "{" not in out.split("Options")[0]
+    assert not any(line != line.rstrip() for line in out.splitlines()), "trailing spaces"
+    assert not re.search(r"\S  +[.,;:]|\s[.,;]\s", out), "a stray space before punctuation"
+    usage = out.splitlines()[0]
+    arguments = re.findall(r"\[?([A-Za-z_]+)\]?", usage.split("[OPTIONS]", 1)[1]) if "[OPTIONS]" in usage else []
+    assert all(a.isupper() for a in arguments), usage
+    examples = re.findall(r"Example: (planner .*)", out)
+    assert examples and all(e.startswith("planner " + " ".join(command)) for e in examples), examples
+    # Site codes and weeks in the example exist in the demo network (seeds/ is kept equal to it).
+    seeds = Path(__file__).resolve().parents[1] / "seeds"
+    sites = {line.split(",")[0] for line in (seeds / "sites.csv").read_text().splitlines()[1:]}
+    weeks = {line.split(",")[0] for line in (seeds / "demand.csv").read_text().splitlines()[1:]}
+    for example in examples:
+        assert set(re.findall(r"(?<![-\w])[PWC]\d+\b", example)) <= sites, example
+        assert set(re.findall(r"\b\d{4}-W\d{2}\b", example)) <= weeks, example
+
+
+def test_resolve_dry_run_on_an_empty_database_says_nothing_is_loaded(engine) -> None:
+    result = invoke("resolve", "--dry-run")
+    assert result.exit_code == 0, result.output
+    assert result.stdout == "nothing is loaded yet, so nothing would be solved; load a folder with `planner load DIR`\n"

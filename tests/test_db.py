@@ -45,6 +45,7 @@ TABLES = {
     "run_limit",
     "run_pin",
     "planner_lock",
+    "setting",
 }
 
 
@@ -146,7 +147,7 @@ def test_embedded_server_is_used_without_a_url(
 
 def test_fresh_database_is_at_head_with_every_table(engine: sa.Engine) -> None:
     with engine.connect() as connection:
-        assert current_revision(connection) == head_revision() == "0007"
+        assert current_revision(connection) == head_revision() == "0008"
         tables = set(sa.inspect(connection).get_table_names())
     assert tables == TABLES | {"alembic_version"}
 

@@ -57,28 +57,42 @@ def chain_files(handling: str = "") -> dict[str, str]:
     }
 
 
-def test_explain_prints_the_issue_format_on_a_hand_built_chain(engine, write_folder):
+def table_rows(output: str) -> list[list[str]]:
+    """The cells of a rich table's body rows."""
+    return [[cell.strip() for cell in line.split("│")[1:-1]] for line in output.splitlines() if line.startswith("│")]
+
+
+def test_explain_prints_the_route_once_on_a_hand_built_chain(engine, write_folder):
     # Hand computed: 12.30 + 29.80 = 42.10. W2 has no handling cost, so it is
     # not split and the chain has no warehouse step.
     run_id = load_and_solve(engine, write_folder, chain_files(), "2026-W49")
     assert stored_prices(engine, run_id)["C17"][0] == Decimal("42.10")
-    result = explain_cli("C17", "2026-W49")
-    assert result.exit_code == 0, result.output
-    assert result.stdout.splitlines()[0] == (
+    assert explain_site(engine, "C17", "2026-W49").text() == (
         "plant A (value 0.00) -> lane A->W2 road 12.30 -> lane W2->C17 road 29.80 = 42.10"
     )
+    result = explain_cli("C17", "2026-W49")
+    assert result.exit_code == 0, result.output
+    assert result.stdout.splitlines()[0] == "C17 in 2026-W49: one more unit costs 42.10 XXX, by this route:"
+    assert table_rows(result.stdout) == [
+        ["spare supply of plant A", "0.0000", "0.0000"],
+        ["lane A->W2 road", "12.3000", "12.3000"],
+        ["lane W2->C17 road", "29.8000", "42.1000"],
+    ]
+    assert result.stdout.count("A->W2 road") == 1  # the route once, not a line and a table
 
 
-def test_explain_shows_the_warehouse_step_when_it_has_a_cost(engine, write_folder):
+def test_explain_shows_the_warehouse_step_as_handling(engine, write_folder):
     # Hand computed: 12.30 + 0.50 handling + 29.80 = 42.60.
     run_id = load_and_solve(engine, write_folder, chain_files(handling="0.50"), "2026-W49")
     assert stored_prices(engine, run_id)["C17"][0] == Decimal("42.60")
-    result = explain_cli("C17", "2026-W49")
-    assert result.exit_code == 0, result.output
-    assert result.stdout.splitlines()[0] == (
-        "plant A (value 0.00) -> lane A->W2 road 12.30 -> through warehouse W2 0.50 "
+    assert explain_site(engine, "C17", "2026-W49").text() == (
+        "plant A (value 0.00) -> lane A->W2 road 12.30 -> handling at warehouse W2 0.50 "
         "-> lane W2->C17 road 29.80 = 42.60"
     )
+    result = explain_cli("C17", "2026-W49")
+    assert result.exit_code == 0, result.output
+    assert ["handling warehouse W2", "0.5000", "12.8000"] in table_rows(result.stdout)
+    assert "throughput" not in result.stdout
 
 
 # P1 has 10 units, close to both customers; P2 has plenty, far from C2.
@@ -121,7 +135,11 @@ def test_explain_a_customer_priced_by_its_shortage_penalty(engine, write_folder)
     }
     run_id = load_and_solve(engine, write_folder, files, "2026-W05")
     assert stored_prices(engine, run_id)["C"][0] == Decimal("7.50")
-    assert explain_site(engine, "C", "2026-W05").text() == "unmet demand (SHORT) -> short at customer C 7.50 = 7.50"
+    assert explain_site(engine, "C", "2026-W05").text() == "unmet demand -> short at customer C 7.50 = 7.50"
+    result = explain_cli("C", "2026-W05")
+    assert result.exit_code == 0, result.output
+    assert table_rows(result.stdout)[0][0] == "unmet demand"
+    assert "SHORT" not in result.stdout and "SPARE" not in result.stdout
 
 
 @pytest.mark.parametrize("period", ["2026-W40", "2026-W41"])
@@ -147,12 +165,11 @@ def test_cli_chain_starts_at_a_plant_and_its_running_total_is_the_stored_price(e
     high = stored_prices(engine, run_id)["C3"][0]
     result = explain_cli("C3", "2026-W40")
     assert result.exit_code == 0, result.output
-    chain = result.stdout.splitlines()[0]
-    assert re.match(r"plant P\d \(value -?\d+\.\d\d\) -> ", chain), chain
-    assert chain.endswith(f"= {high:.2f}")
+    assert result.stdout.splitlines()[0] == f"C3 in 2026-W40: one more unit costs {high:.2f} XXX, by this route:"
+    rows = table_rows(result.stdout)
+    assert re.match(r"spare supply of plant P\d$", rows[0][0]), rows[0]
     # The step table's last running total is the price to four decimals.
-    last_running = [line for line in result.stdout.splitlines() if line.startswith("│")][-1].split("│")[3].strip()
-    assert Decimal(last_running.replace(",", "")) == high
+    assert Decimal(rows[-1][2].replace(",", "")) == high
 
 
 def test_explain_of_an_earlier_run_uses_that_run_s_snapshot(engine, write_folder):
@@ -176,14 +193,32 @@ def test_explain_a_site_without_price_high_prints_the_reason(engine, write_folde
     assert " ".join(result.stdout.split()) == f"C17 in 2026-W49: {reason}"
 
 
-def test_explain_errors_are_usage_errors(engine, write_folder):
+def test_explain_errors_are_usage_errors_that_advise_a_step_that_works(engine, write_folder):
+    nothing = explain_cli("C17", "2026-W49")
+    assert nothing.exit_code == 2
+    assert "nothing is loaded yet" in nothing.stderr and "planner load DIR" in nothing.stderr
     assert load_folder(engine, write_folder(chain_files())).created
     not_solved = explain_cli("C17", "2026-W49")
     assert not_solved.exit_code == 2
-    assert "no optimal run of 2026-W49" in not_solved.stderr
-    solve_period(engine, "2026-W49")
+    assert "2026-W49 is loaded but not solved yet; solve it with `planner solve --period 2026-W49`" in not_solved.stderr
+    never_loaded = explain_cli("C17", "2026-W48")
+    assert never_loaded.exit_code == 2
+    assert "2026-W48 was never loaded; load a folder that has it" in never_loaded.stderr
+    assert "planner solve" not in never_loaded.stderr  # solving it would fail: it must be loaded first
+    run_id = solve_period(engine, "2026-W49").run_id
     unknown = explain_cli("C99", "2026-W49")
     assert unknown.exit_code == 2
-    assert "site C99 is not in the snapshot of 2026-W49" in unknown.stderr
-    with pytest.raises(PlannerError, match="no optimal run of 2026-W48"):
+    assert f"site C99 is not in run {run_id} (week 2026-W49)" in unknown.stderr
+    with pytest.raises(PlannerError, match="2026-W48 was never loaded"):
         explain_site(engine, "C17", "2026-W48")
+    for args, message in (
+        (["explain", "C17", "--run", "999"], "there is no run 999"),
+        (["explain", "C17", "--run", str(run_id), "--period", "2026-W50"], "does not cover 2026-W50"),
+        (["explain", "C17"], "name a week with --period WEEK or a run with --run ID"),
+    ):
+        result = runner.invoke(app, args)
+        assert result.exit_code == 2, (args, result.output)
+        assert message in result.stderr, (args, result.stderr)
+    by_run = runner.invoke(app, ["explain", "C17", "--run", str(run_id)])  # a week run needs no --period
+    assert by_run.exit_code == 0, by_run.output
+    assert by_run.stdout.startswith("C17 in 2026-W49: one more unit costs 42.10")

@@ -85,9 +85,9 @@ def test_html_report_is_self_contained(week11_html: Path) -> None:
 def test_write_week_report_writes_nothing_without_a_run(engine: sa.Engine, tmp_path: Path) -> None:
     path = tmp_path / "none.html"
     report = write_week_report(engine, "2026-W11", path)
-    assert report.empty and "no run of 2026-W11 yet" in report.message
+    assert report.empty and "nothing is loaded yet, so there is no run of 2026-W11" in report.message
     assert not path.exists()
-    with pytest.raises(PlannerError, match="no run of 2026-W11 yet"):
+    with pytest.raises(PlannerError, match="nothing is loaded yet"):
         render_week_report(engine, report)
 
 
@@ -98,7 +98,8 @@ def test_html_report_shows_shortages(engine: sa.Engine, write_folder) -> None:
     page.feed(html)
     text = " ".join(page.text)
     assert "Harbour Shop" in text and "75.00" in text  # hand computed: 15 short x 5
-    assert "no optimal run of the previous week 2026-W09" in text
+    assert "no previous week to compare prices with: 2026-W09 was never loaded" in text
+    assert "versus 2026-W09" not in text
     assert len(page.images) == 1  # no price moved: only the network picture
 
 

@@ -49,11 +49,15 @@ def test_prices_csv_hand_computed(solved: dict[str, int]) -> None:
         for r in csv_rows(result.stdout)
     }
     # Hand computed in tests/test_views.py.
-    assert got[("2026-W10", "C1")] == (12, 12, 12, "False", "")
-    assert got[("2026-W11", "C2")] == (15, 15, 15, "False", "2.0000")
-    assert got[("2026-W11", "C3")] == (5, 3, 5, "True", "0.0000")
-    assert got[("2026-W11", "P3")] == (2, 0, 2, "True", "0.0000")
+    assert got[("2026-W10", "C1")] == (12, 12, 12, "false", "")
+    assert got[("2026-W11", "C2")] == (15, 15, 15, "false", "2.0000")
+    assert got[("2026-W11", "C3")] == (5, 3, 5, "true", "0.0000")
+    assert got[("2026-W11", "P3")] == (2, 0, 2, "true", "0.0000")
     assert len(got) == 14
+    # Every price at the run's precision (4 cost decimals), the currency on every row.
+    rows = csv_rows(result.stdout)
+    assert {len(r["price"].split(".")[1]) for r in rows} == {4}
+    assert {r["currency"] for r in rows} == {"XXX"}
 
 
 def test_prices_of_one_site_in_a_week_range(solved: dict[str, int]) -> None:
@@ -69,13 +73,15 @@ def test_prices_of_one_site_in_a_week_range(solved: dict[str, int]) -> None:
     assert {(r["period"], r["site"], r["price"]) for r in json.loads(plants.stdout)} == {
         (week, site, price)
         for week in ("2026-W10", "2026-W11")
-        for site, price in (("P1", 0), ("P2", 0), ("P3", 2))
+        for site, price in (("P1", "0.0000"), ("P2", "0.0000"), ("P3", "2.0000"))
     }
 
 
 def test_prices_of_one_run(solved: dict[str, int]) -> None:
     result = run_cli("prices", "C1", "--run", str(solved["2026-W11"]), "--format", "json")
-    assert [(r["period"], r["price"], r["price_change"]) for r in json.loads(result.stdout)] == [("2026-W11", 14, 2)]
+    assert [(r["period"], r["price"], r["price_change"]) for r in json.loads(result.stdout)] == [
+        ("2026-W11", "14.0000", "2.0000")
+    ]
 
 
 def test_prices_nothing_to_show_and_bad_input(engine: sa.Engine, solved: dict[str, int]) -> None:
@@ -104,13 +110,13 @@ def test_prices_chart(solved: dict[str, int], tmp_path: Path) -> None:
     assert matplotlib.image.imread(path).shape[:2] == (400, 800)
 
 
-COST_W10 = [  # hand computed: lanes in use, then handling 50 x 1 and penalties 15 x 5
-    ("plant->customer", "road", "15", "135"),
-    ("plant->warehouse", "road", "50", "100"),
-    ("warehouse->customer", "", "50", "70"),
-    ("plant->customer", "rail", "10", "40"),
-    ("warehouse handling", "", "50", "50"),
-    ("shortage penalty", "", "15", "75"),
+COST_W10 = [  # hand computed: lanes in use by echelon then mode, then handling 50 x 1 and penalties 15 x 5
+    ("plant->warehouse", "road", "50", "100.0000"),
+    ("plant->customer", "rail", "10", "40.0000"),
+    ("plant->customer", "road", "15", "135.0000"),
+    ("warehouse->customer", "", "50", "70.0000"),
+    ("warehouse handling", "", "50", "50.0000"),
+    ("shortage penalty", "", "15", "75.0000"),
 ]
 
 
@@ -131,7 +137,7 @@ def test_report_csv_sections_hand_computed(solved: dict[str, int]) -> None:
     ]
     shortages = csv_rows(run_cli("report", "--period", "2026-W10", "--format", "csv", "--section", "shortages").stdout)
     assert [(r["customer"], r["units_short"], r["penalty"], r["penalty_cost"]) for r in shortages] == [
-        ("C3", "15", "5", "75")
+        ("C3", "15", "5.0000", "75.0000")
     ]
     # One section with nothing in it is a header only.
     none = run_cli("report", "--period", "2026-W11", "--format", "csv", "--section", "shortages")
@@ -150,8 +156,11 @@ def test_report_json(solved: dict[str, int]) -> None:
     result = run_cli("report", "--period", "2026-W11", "--format", "json")
     body = json.loads(result.stdout)
     assert (body["period"], body["previous_period"]) == ("2026-W11", "2026-W10")
-    assert (body["run"]["run_id"], body["run"]["cost"], body["run"]["certificate_ok"]) == (solved["2026-W11"], 460, True)
-    assert sum(row["cost"] for row in body["cost"]) == 460  # hand computed
+    assert (body["run"]["run_id"], body["run"]["cost"], body["run"]["certificate_ok"]) == (
+        solved["2026-W11"], "460.0000", True
+    )
+    assert sum(D(row["cost"]) for row in body["cost"]) == 460  # hand computed
+    assert body["currency"] == "XXX"
     assert [m["site"] for m in body["moves"]] == ["C1", "C2"]
     assert body["shortages"] == [] and body["notes"] == []
 
@@ -163,8 +172,8 @@ def test_report_table(solved: dict[str, int]) -> None:
     for expected in (
         "cost 470.00", "certificate exact", "Cost by echelon and mode", "total", "470.00",
         "P2->C2 rail", "9.00", "Shortages", "75.00",
-        "no optimal run of the previous week 2026-W09 to compare prices with",
-        "no price moved versus 2026-W09",
+        "no previous week to compare prices with: 2026-W09 was never loaded",
+        "no previous week to compare 2026-W10 with",
     ):
         assert expected in out, expected
 
@@ -172,11 +181,11 @@ def test_report_table(solved: dict[str, int]) -> None:
 def test_report_nothing_to_show(engine: sa.Engine, solved: dict[str, int], write_folder) -> None:
     unsolved = run_cli("report", "--period", "2026-W12")
     assert unsolved.exit_code == 0
-    assert "no run of 2026-W12 yet" in unsolved.stdout
+    assert "2026-W12 was never loaded; load a folder that has it with `planner load DIR`" in unsolved.stdout
     as_json = run_cli("report", "--period", "2026-W12", "--format", "json")
     assert as_json.exit_code == 0
     assert json.loads(as_json.stdout)["run"] is None
-    assert "no run of 2026-W12 yet" in as_json.stderr
+    assert "2026-W12 was never loaded" in as_json.stderr
     # A week whose only run is infeasible: C2 (no penalty) has no lane into it.
     week12 = {
         "sites.csv": SITES,
@@ -188,14 +197,15 @@ def test_report_nothing_to_show(engine: sa.Engine, solved: dict[str, int], write
     assert solve_period(engine, "2026-W12").status == "infeasible"
     infeasible = run_cli("report", "--period", "2026-W12")
     assert infeasible.exit_code == 0
-    assert "no optimal run of 2026-W12: its latest run" in infeasible.stdout
-    assert "ended infeasible" in infeasible.stdout
+    assert "no optimal run of 2026-W12: its newest run" in infeasible.stdout
+    assert "ended infeasible; see `planner certificate --run" in infeasible.stdout
 
 
 def test_report_bad_input(solved: dict[str, int]) -> None:
     for args, message in (
         (("report", "--period", "2026-W54"), "does not exist"),
-        (("report", "--period", "2026-W10", "--run", str(solved["2026-W11"])), "is not a week run of 2026-W10"),
+        (("report", "--period", "2026-W10", "--run", str(solved["2026-W11"])),
+         f"run {solved['2026-W11']} (week 2026-W11) does not cover 2026-W10"),
     ):
         result = run_cli(*args)
         assert result.exit_code == 2, args
@@ -213,7 +223,7 @@ def test_report_chart(solved: dict[str, int], tmp_path: Path) -> None:
 def test_week_report_library(engine: sa.Engine, solved: dict[str, int], write_folder) -> None:
     report = week_report(engine, "2026-W10")
     assert report.cost_total == report.run["cost"] == 470
-    assert report.notes == ["no optimal run of the previous week 2026-W09 to compare prices with"]
+    assert report.notes == ["no previous week to compare prices with: 2026-W09 was never loaded"]
     # A newer run that ended infeasible is named, and the latest optimal one reported.
     load_folder(engine, write_folder(hand_network({"2026-W10": 12}, cut_off_c2=True)))
     failed = solve_period(engine, "2026-W10")
@@ -221,7 +231,7 @@ def test_week_report_library(engine: sa.Engine, solved: dict[str, int], write_fo
     assert again.run["run_id"] == solved["2026-W10"]
     assert f"the newest run of 2026-W10 (run {failed.run_id}) ended infeasible" in again.notes[0]
     older = week_report(engine, "2026-W10", run_id=solved["2026-W10"])
-    assert older.cost_total == 470 and older.notes[-1].startswith("no optimal run of the previous week")
+    assert older.cost_total == 470 and older.notes[-1].startswith("no previous week to compare prices with")
 
 
 def test_cost_breakdown_matches_lane_flow(engine: sa.Engine, solved: dict[str, int]) -> None:

@@ -1,11 +1,12 @@
 """The ``planner`` command line: thin Typer commands over the library, one module per group.
 
 =====================  ==============================================
-:mod:`.common`          the app, consoles, shared options, errors
-:mod:`.data`            ``init``, ``load``, ``periods``
-:mod:`.solving`         ``solve``, ``resolve``, ``certificate``
-:mod:`.analysis`        ``prices``, ``report``, ``explain``
+:mod:`.common`          the app, consoles, shared options, exit codes, failures
+:mod:`.data`            ``init``, ``currency``, ``load``, ``periods``
+:mod:`.solving`         ``solve``, ``resolve``, ``runs``, ``certificate``
+:mod:`.analysis`        ``report``, ``explain``, ``prices``, ``rate-ranges``
 :mod:`.history`         ``prune``, ``pin``, ``unpin``
+:mod:`.shell`           ``sql``, ``server start|status|stop``
 :mod:`.demo`            ``demo``
 =====================  ==============================================
 
@@ -18,10 +19,11 @@ every command starts fast. Importing this package registers every command on
 
 # isort: off
 from planner.cli.common import app
-from planner.cli import data  # noqa: F401  (registers init, load, periods)
-from planner.cli import solving  # noqa: F401  (registers solve, resolve, certificate)
-from planner.cli import analysis  # noqa: F401  (registers prices, report, explain)
+from planner.cli import data  # noqa: F401  (registers init, currency, load, periods)
+from planner.cli import solving  # noqa: F401  (registers solve, resolve, runs, certificate)
+from planner.cli import analysis  # noqa: F401  (registers report, explain, prices, rate-ranges)
 from planner.cli import history  # noqa: F401  (registers prune, pin, unpin)
+from planner.cli import shell  # noqa: F401  (registers sql, server)
 from planner.cli import demo  # noqa: F401  (registers demo)
 # isort: on
 

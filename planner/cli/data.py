@@ -13,12 +13,12 @@ from planner.cli.common import (
     app,
     certificate_text,
     console,
+    database_target,
     engine,
-    fail,
     money,
     say,
+    shown_url,
 )
-from planner.errors import PlannerError
 
 
 @app.command()
@@ -28,19 +28,53 @@ def init(database_url: Optional[str] = DATABASE_URL) -> None:
     Example: planner init
     """
     from planner.database import connect
-    from planner.database.migrate import migrate
+    from planner.database.migrate import current_revision, head_revision, migrate
 
-    try:
-        url = connect.database_url(database_url)
-        migrate(connect.get_engine(url))
-    except PlannerError as err:
-        fail(err)
-    say(f"schema is up to date on {connect.masked_url(url)}")
+    url = database_target(database_url)
+    db_engine = connect.get_engine(url)
+    with db_engine.connect() as conn:
+        before = current_revision(conn)
+    migrate(db_engine)
+    where = shown_url(url)
+    head = head_revision()
+    if before is None:
+        say(f"created the schema (revision {head}) on {where}")
+    elif before == head:
+        say(f"schema already up to date (revision {head}) on {where}")
+    else:
+        say(f"upgraded the schema from revision {before} to {head} on {where}")
+
+
+@app.command()
+def currency(
+    code: Optional[str] = typer.Argument(None, metavar="CODE", help="ISO 4217 code to set, e.g. EUR (default: show the current one)."),
+    database_url: Optional[str] = DATABASE_URL,
+) -> None:
+    """Show or set the currency of money figures (ISO 4217).
+
+    One currency per database. Until it is set it is XXX, ISO 4217's code for "no currency". Setting it
+    names the currency of the figures; nothing is converted.
+
+    Example: planner currency EUR
+    """
+    from planner.database.settings import DEFAULT_CURRENCY, set_currency
+    from planner.database.settings import currency as current
+
+    db_engine = engine(database_url)
+    if code is None:
+        shown = current(db_engine)
+        hint = "; set it with `planner currency CODE`, e.g. planner currency EUR" if shown == DEFAULT_CURRENCY else ""
+        say(f"currency: {shown}{hint}")
+        return
+    say(f"currency set to {set_currency(db_engine, code)}")
 
 
 @app.command()
 def load(
-    folder: Path = typer.Argument(..., exists=True, file_okay=False, help="Folder with sites.csv, supply.csv, demand.csv, lanes.csv."),
+    folder: Path = typer.Argument(
+        ..., exists=True, file_okay=False, metavar="FOLDER",
+        help="Folder with sites.csv, supply.csv, demand.csv and lanes.csv.",
+    ),
     database_url: Optional[str] = DATABASE_URL,
 ) -> None:
     """Validate and load a folder of CSV files as one load batch.
@@ -49,29 +83,25 @@ def load(
     """
     from planner.database.ingest import load_folder
 
-    try:
-        result = load_folder(engine(database_url), folder)
-    except PlannerError as err:
-        fail(err)
+    result = load_folder(engine(database_url), folder)
     say(result.message)
 
 
 @app.command()
 def periods(database_url: Optional[str] = DATABASE_URL) -> None:
-    """List the loaded periods with their current batch and latest run.
+    """List loaded weeks with their current batch and latest run.
 
     Example: planner periods
     """
+    from planner.database.settings import currency
     from planner.runs.weekly import period_overview
 
-    try:
-        rows = period_overview(engine(database_url))
-    except PlannerError as err:
-        fail(err)
+    db_engine = engine(database_url)
+    rows = period_overview(db_engine)
     if not rows:
         console.print("no periods loaded yet; load a folder with `planner load DIR`")
         return
-    table = Table("period", "batch", "latest run", "status", "cost", "certificate")
+    table = Table("period", "batch", "latest run", "status", f"cost ({currency(db_engine)})", "certificate")
     for r in rows:
         table.add_row(
             r["period"], str(r["batch_id"]), str(r["run_id"] or "-"), r["status"] or "not solved",

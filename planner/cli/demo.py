@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import os
 from pathlib import Path
 from typing import Optional
 
@@ -10,59 +11,74 @@ from rich.table import Table
 
 from planner.cli.common import (
     DATABASE_URL,
+    EXIT_NOT_OPTIMAL,
     app,
     certificate_text,
     console,
+    database_target,
     engine,
-    fail,
     money,
     say,
 )
-from planner.errors import PlannerError
 
 
 @app.command()
 def demo(
-    folder: Optional[Path] = typer.Option(None, "--folder", help="Where to write the demo CSVs (default: $PLANNER_HOME/demo)."),
+    folder: Optional[Path] = typer.Option(None, "--folder", metavar="FOLDER", help="Where to write the demo CSVs (default: $PLANNER_HOME/demo)."),
     database_url: Optional[str] = DATABASE_URL,
 ) -> None:
-    """Build a fictional network, load it, solve every week and show what moved.
+    """Build, load and solve a fictional network; show what moved.
+
+    The demo network (plants P01-P03, warehouses W01-W06, customers C01-C60,
+    weeks 2026-W45..2026-W52) is written as CSV files, loaded and solved week
+    by week.
 
     Example: planner demo
     """
     from planner.database import connect
+    from planner.database.settings import currency
     from planner.runs.demo import run_demo
 
-    try:
-        url = connect.database_url(database_url)
-        db_engine = engine(url)
-        target = folder or (connect.planner_home() / "demo")
-        report = run_demo(db_engine, target)
-    except PlannerError as err:
-        fail(err)
+    embedded = not (database_url or os.environ.get(connect.DATABASE_URL_ENV))
+    url = database_target(database_url)
+    db_engine = engine(url)
+    report = run_demo(db_engine, folder or (connect.planner_home() / "demo"))
+    code = currency(db_engine)
     say(f"demo network written to {report.folder}")
     say(report.load_message)
-    weeks = Table("week", "status", "cost", "shortage", "certificate", title="Cost of each week")
+    weeks = Table("week", "status", f"cost ({code})", "shortage", "certificate", title="Cost of each week")
     for s in report.runs:
         weeks.add_row(s.period, s.status, money(s.cost), f"{s.shortage or 0:,}", certificate_text(s.certificate_ok))
     console.print(weeks)
-    movers = Table("site", "kind", "region", "lowest", "highest", "moved by", title="Ten sites whose price moved most")
+    movers = Table("site", "kind", "region", f"lowest price ({code})", f"highest price ({code})", f"moved by ({code})",
+                   title="Ten sites whose price moved most")
     for m in report.movers:
         movers.add_row(m["site"], m["kind"], m["region"] or "", money(m["low"]), money(m["high"]), money(m["moved"]))
     console.print(movers)
-    say(
-        "open the database with psql:\n  psql " + _psql_target(url)
-        + "\nthen for example: SELECT * FROM site_price_history WHERE site = "
-        f"'{report.movers[0]['site'] if report.movers else 'C0001'}' ORDER BY period;"
-    )
+    site = report.movers[0]["site"] if report.movers else "C17"
+    query = f"SELECT * FROM site_price_history WHERE site = '{site}' ORDER BY period;"
+    for line in _next_steps(url, embedded, query):
+        say(line)
+    if database_url:
+        say("(add the same --database-url to each of these commands)")
     if any(not s.ok for s in report.runs):
-        raise typer.Exit(1)
+        raise typer.Exit(EXIT_NOT_OPTIMAL)
 
 
-def _psql_target(url: str) -> str:
-    """A libpq URL for psql, without the password (psql asks for it, or reads ~/.pgpass)."""
-    from sqlalchemy.engine import make_url
+def _next_steps(url: str, embedded: bool, query: str) -> list[str]:
+    """How to look at the demo's database afterwards: commands that work once this one has ended."""
+    from planner.database.connect import libpq_url
 
-    # URL.set() treats None as "keep"; URL is a named tuple, so _replace drops it.
-    bare = make_url(url)._replace(password=None).set(drivername="postgresql")
-    return "'" + bare.render_as_string(hide_password=False) + "'"
+    steps = [
+        "next: planner report --period 2026-W52 --html week52.html, planner explain C17 --period 2026-W52, "
+        "planner runs",
+        f'look at the tables and views with SQL: planner sql   (then for example {query})',
+    ]
+    if embedded:
+        steps += [
+            "the embedded server stops when each planner command ends; to keep it up for psql or a reporting "
+            "tool: planner server start (its URL: planner server status; stop it: planner server stop)",
+        ]
+    else:
+        steps.append(f"or with psql directly: psql '{libpq_url(url)}'")
+    return steps

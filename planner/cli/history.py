@@ -17,7 +17,7 @@ def _runs(count: int) -> str:
 
 @app.command()
 def prune(
-    keep: int = typer.Option(..., "--keep", min=1, help="Newest runs kept per week (and per span of a linked horizon)."),
+    keep: int = typer.Option(..., "--keep", min=1, metavar="N", help="Newest runs kept per week (and per span of a linked horizon)."),
     dry_run: bool = typer.Option(False, "--dry-run", help="Only list what would be dropped."),
     database_url: Optional[str] = DATABASE_URL,
 ) -> None:
@@ -50,8 +50,8 @@ def prune(
 
 @app.command()
 def pin(
-    run_ids: List[int] = typer.Argument(None, help="Run ids to pin; none lists the pinned runs."),
-    note: Optional[str] = typer.Option(None, "--note", help="Why the runs are kept."),
+    run_ids: List[int] = typer.Argument(None, metavar="RUN_IDS", help="Run ids to pin; none lists the pinned runs."),
+    note: Optional[str] = typer.Option(None, "--note", metavar="TEXT", help="Why the runs are kept."),
     database_url: Optional[str] = DATABASE_URL,
 ) -> None:
     """Pin runs so that `planner prune` keeps them; without RUN_IDS list the pinned runs.
@@ -85,7 +85,7 @@ def pin(
 
 @app.command()
 def unpin(
-    run_ids: List[int] = typer.Argument(..., help="Run ids to unpin."),
+    run_ids: List[int] = typer.Argument(..., metavar="RUN_IDS", help="Run ids to unpin."),
     database_url: Optional[str] = DATABASE_URL,
 ) -> None:
     """Unpin runs: `planner prune` may drop them again.

@@ -17,6 +17,9 @@ from planner.core.network import ArcKind, Instance, NodeRole
 from planner.core.prices import HIGH_REASON, PriceRanges, marginal_path
 from planner.core.residual import Residual
 
+#: How the virtual nodes read in words: never by their internal names.
+_VIRTUAL_WORDS = {NodeRole.SPARE: "spare supply", NodeRole.SHORT: "unmet demand"}
+
 
 @dataclass(frozen=True)
 class Step:
@@ -48,12 +51,13 @@ class Explanation:
             if step.kind == "spare":
                 parts.append(f"{step.label} (value {step.running:.2f})")
             elif step.kind == "short-feed":
-                parts.append("unmet demand (SHORT)")
+                parts.append("unmet demand")
             elif step.kind == "lane":
                 sign = "" if step.forward else "one unit less on "
                 parts.append(f"{sign}lane {step.label} {step.unit_cost:.2f}")
             elif step.kind == "throughput":
-                parts.append(f"through {step.label} {step.unit_cost:.2f}")
+                sign = "" if step.forward else "one unit less "
+                parts.append(f"{sign}handling at {step.label} {step.unit_cost:.2f}")
             elif step.kind == "shortage":
                 parts.append(f"short at {step.label} {step.unit_cost:.2f}")
             elif step.kind == "stock":
@@ -108,7 +112,7 @@ def explain_node(
     """
     site = int(inst.node_site[node])
     period = int(inst.node_period[node])
-    site_name = str(site_codes[site]) if site >= 0 else NodeRole(int(inst.node_role[node])).name
+    site_name = str(site_codes[site]) if site >= 0 else _VIRTUAL_WORDS[NodeRole(int(inst.node_role[node]))]
     period_name = str(period_codes[period]) if period >= 0 else ""
     if not ranges.has_high[node]:
         return Explanation(site_name, period_name, None, reason=HIGH_REASON)
@@ -180,7 +184,7 @@ def route_steps(inst: Instance, path: list[tuple[int, bool]], names: RouteNames)
         if kind == ArcKind.TO_SPARE:
             label, k = names.site(ref) + when, "spare"
         elif kind == ArcKind.SPARE_TO_SHORT:
-            label, k = "SHORT", "short-feed"
+            label, k = "unmet demand", "short-feed"
         elif kind == ArcKind.LANE:
             label, k = str(names.lane_labels[ref]) + when, "lane"
         elif kind == ArcKind.THROUGHPUT:

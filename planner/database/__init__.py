@@ -8,9 +8,11 @@
 :mod:`.ingest`          CSV folders validated and loaded as one batch by COPY
 :mod:`.snapshot`        a period's snapshot -> ``WeekData``, scaled exactly in PostgreSQL
 :mod:`.results`         a run's row, flows, prices, stock and limit values, stored in one transaction
-:mod:`.reopen`          a stored week run read back as arrays (snapshot, instance, flow)
+:mod:`.linked`          a linked horizon's snapshots on one site and lane list
+:mod:`.reopen`          a stored run (week or horizon) read back as arrays (input, instance, flow)
 :mod:`.history`         result partitions per week, retention of old runs, pinned runs
 :mod:`.pgbinary`        PostgreSQL binary COPY rows built by numpy
+:mod:`.settings`        settings kept once per database: the currency (ISO 4217)
 =====================  ==========================================================
 
 May import the core, :mod:`planner.errors`, :mod:`planner.periods`,

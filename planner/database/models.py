@@ -41,6 +41,7 @@ __all__ = [
     "RunPin",
     "RunSitePrice",
     "Site",
+    "Setting",
     "SiteVersion",
     "SolveRun",
     "Supply",
@@ -376,6 +377,17 @@ class PlannerLock(Base):
     __table_args__ = {"comment": "rows the planner locks (FOR UPDATE) to serialise loads and each week's solves; no other role may take them"}
 
     name: Mapped[str] = mapped_column(sa.Text, primary_key=True)
+
+
+class Setting(Base):
+    """A setting kept once per database (migration 0008): ``currency``, an ISO 4217 code."""
+
+    __tablename__ = "setting"
+    __table_args__ = (sa.CheckConstraint("name <> 'currency' OR value ~ '^[A-Z]{3}$'", name="currency_code"),)
+
+    name: Mapped[str] = mapped_column(sa.Text, primary_key=True)
+    value: Mapped[str] = mapped_column(sa.Text)
+    changed_at: Mapped[datetime.datetime] = mapped_column(server_default=sa.func.now())
 
 
 #: The ``site_price_history`` view (created by migration 0001) for Core queries; it is

@@ -1,13 +1,14 @@
 """Reports on stored runs: queries on the views, explanations, charts, the HTML report.
 
 =====================  ==========================================================
+:mod:`.catalog`         the stored runs: list them, find the one asked about, say what to do next
 :mod:`.queries`         the reporting views as pandas frames; the weekly report
 :mod:`.explain`         the marginal route of a stored run's price
 :mod:`.rates`           rate ranges of a stored run's lanes, with their routes
 :mod:`.charts`          PNG charts (matplotlib Agg)
 :mod:`.html`            the self-contained weekly HTML report
 :mod:`.sections`        the weekly report's sections and columns, for every output
-:mod:`.formats`         JSON-ready values for scripts
+:mod:`.formats`         how figures are written: exact decimals, true/false, ISO dates
 =====================  ==========================================================
 
 May import the core, the database side, pandas and matplotlib; never the

@@ -4,9 +4,12 @@ Everything is in the file: styles inline on each element (mail programs drop
 style sheets), charts as base64 PNG ``data:`` images, no scripts, no links to
 fetch. It opens in a browser and stays readable when forwarded by e-mail.
 
-Content: the week's run and certificate, cost by echelon and mode, a picture of
-the network, the biggest price moves versus the previous week with a price chart
-of the sites that moved most, the top binding capacities and the shortages.
+Content: the week's run and certificate, then the report's sections in the
+order of :data:`planner.reports.sections.SECTIONS` (the same as on the command
+line): cost by echelon and mode with a picture of the network, the top binding
+capacities, the biggest price moves versus the previous week with a price chart
+of the sites that moved most, and the shortages. Money headings carry the
+database's currency code.
 """
 
 from __future__ import annotations
@@ -73,9 +76,12 @@ def _table(frame: pd.DataFrame, columns: dict[str, str], numeric: dict[str, int]
     return f'<table style="{_TABLE}">{"".join(rows)}</table>'
 
 
-def _spec_table(spec: Section, frame: pd.DataFrame, period: str, previous: str) -> str:
+def _spec_table(spec: Section, frame: pd.DataFrame, report: WeekReport) -> str:
     """HTML table of a report section as :mod:`planner.reports.sections` defines it; every cell escaped."""
-    head = "".join(f'<th style="{_TH}">{escape(spec.heading(f, period, previous))}</th>' for f in spec.fields)
+    period, previous = report.period, report.previous_period
+    head = "".join(
+        f'<th style="{_TH}">{escape(spec.heading(f, period, previous, report.currency))}</th>' for f in spec.fields
+    )
     rows = [f"<tr>{head}</tr>"]
     for record in frame.to_dict(orient="records"):
         cells = "".join(
@@ -86,17 +92,16 @@ def _spec_table(spec: Section, frame: pd.DataFrame, period: str, previous: str) 
     return f'<table style="{_TABLE}">{"".join(rows)}</table>'
 
 
-def _report_section(report: WeekReport, name: str, extra: str = "") -> str:
+def _report_section(report: WeekReport, spec: Section, extra: str = "") -> str:
     """A report section by its spec: title, note, table (or what its emptiness means), then ``extra``."""
-    spec = next(s for s in SECTIONS if s.name == name)
     period, previous = report.period, report.previous_period
-    frame = report.sections()[name]
+    frame = report.sections()[spec.name]
     note = f'<p style="{_NOTE}">{escape(spec.note)}</p>' if spec.note and not frame.empty else ""
     if frame.empty:
-        said = spec.empty.format(period=period, previous=previous)
+        said = spec.said_when_empty(period, previous)
         body = f'<p style="{_NOTE}">{escape(said[0].upper() + said[1:])}.</p>'
     else:
-        body = _spec_table(spec, frame, period, previous)
+        body = _spec_table(spec, frame, report)
     return _section(spec.titled(period, previous), note + body + extra)
 
 
@@ -113,21 +118,31 @@ def _section(title: str, body: str) -> str:
 
 
 def _summary(report: WeekReport) -> str:
-    run = report.run
+    run, money = report.run, report.currency
     certificate = {True: "exact (primal cost = dual objective)", False: "FAILED", None: "-"}[run["certificate_ok"]]
-    facts = {
-        "run": run["run_id"],
-        "status": run["status"],
-        "cost": format_number(run["cost"]),
-        "dual objective": format_number(run["dual_objective"]),
+    facts = {"run": f"{run['run_id']} ({run_words(report)})", "status": run["status"]}
+    if report.horizon:
+        facts[f"cost of {report.period} ({money})"] = format_number(report.cost_total)
+        facts[f"cost of the horizon ({money})"] = format_number(run["cost"])
+    else:
+        facts[f"cost ({money})"] = format_number(run["cost"])
+    facts.update({
+        f"dual objective ({money})": format_number(run["dual_objective"]),
         "certificate": certificate,
         "shortage (units)": format_number(run["shortage_units"], 0),
         "solved at": f"{run['solved_at']:%Y-%m-%d %H:%M %Z}",
         "solver time (s)": round(float(run["solver_seconds"] or 0), 3),
         "input fingerprint": str(run["input_fingerprint"])[:16] + "...",
-    }
+    })
     frame = pd.DataFrame({"what": list(facts), "value": list(facts.values())}, dtype=object)
     return _table(frame, {"what": "", "value": ""}, numeric={})
+
+
+def run_words(report: WeekReport) -> str:
+    """``week 2026-W47`` or ``week 2026-W47 of the linked horizon 2026-W45..2026-W52``."""
+    if report.horizon:
+        return f"week {report.period} of the linked horizon {report.run['period']}"
+    return f"week {report.period}"
 
 
 def render_week_report(engine: Engine, report: WeekReport) -> str:
@@ -153,25 +168,25 @@ def render_week_report(engine: Engine, report: WeekReport) -> str:
     if report.empty:
         raise PlannerError(report.message)
     period = report.period
+    title = f"Weekly network plan: {period}" + (f" (linked horizon {report.run['period']})" if report.horizon else "")
     parts = [
-        f'<h1 style="font-size: 24px; margin: 0 0 4px 0;">Weekly network plan: {escape(period)}</h1>',
+        f'<h1 style="font-size: 24px; margin: 0 0 4px 0;">{escape(title)}</h1>',
         f'<p style="{_NOTE}">Generated {datetime.datetime.now(datetime.timezone.utc):%Y-%m-%d %H:%M} UTC. '
-        "Prices are in currency per unit, relative to unused supply (worth 0). "
-        "A plan is decision support, subject to your own rules and judgement.</p>",
+        f"Money is in {escape(report.currency)}; prices are per unit, relative to unused supply (worth 0). "
+        "A plan is decision support, subject to your own safety, labour and transport rules and judgement.</p>",
     ]
     parts += [f'<p style="{_NOTE}">Note: {escape(note)}</p>' for note in report.notes]
     parts.append(_section("Run and certificate", _summary(report)))
-    parts.append(_cost_section(report))
-    parts.append(_network_section(engine, report))
-    parts.append(_moves_section(engine, report))
-    parts.append(_binding_section(report))
-    parts.append(_shortages_section(report))
+    extras = {"cost": lambda: _network_image(engine, report), "moves": lambda: _price_charts(engine, report)}
+    for spec in SECTIONS:
+        extra = extras.get(spec.name, lambda: "")()
+        parts.append(_report_section(_with_total(report) if spec.name == "cost" else report, spec, extra))
     body = "\n".join(parts)
     return (
         "<!DOCTYPE html>\n"
         '<html lang="en"><head><meta charset="utf-8">'
         '<meta name="viewport" content="width=device-width, initial-scale=1">'
-        f"<title>Weekly network plan {escape(period)}</title></head>"
+        f"<title>{escape(title)}</title></head>"
         f'<body style="{_FONT} margin: 24px; max-width: 960px;">\n{body}\n</body></html>\n'
     )
 
@@ -180,38 +195,34 @@ def _run_id(report: WeekReport) -> int | None:
     return None if report.run is None else int(report.run["run_id"])
 
 
-def _cost_section(report: WeekReport) -> str:
-    total = pd.DataFrame([{"echelon": "total", "mode": "", "units": None, "cost": report.cost_total}], dtype=object)
-    with_total = dataclasses.replace(report, cost=pd.concat([report.cost, total], ignore_index=True))
-    return _report_section(with_total, "cost")
+def _with_total(report: WeekReport) -> WeekReport:
+    label = f"total of {report.period}" if report.horizon else "total"
+    total = pd.DataFrame([{"echelon": label, "mode": "", "units": None, "cost": report.cost_total}], dtype=object)
+    return dataclasses.replace(report, cost=pd.concat([report.cost, total], ignore_index=True))
 
 
-def _network_section(engine: Engine, report: WeekReport) -> str:
+def _network_image(engine: Engine, report: WeekReport) -> str:
     period = report.period
     sites, lanes, in_use = network_of_week(engine, period, run_id=_run_id(report))
-    return _section(
-        "Network",
-        _image(
-            network_chart(sites, lanes, title=f"Network of {period}", lanes_in_use=in_use),
-            f"network of {period}: lanes by flow, lanes at capacity dashed red",
-        ),
+    title = f"Network of {period}" + (f" in linked horizon {report.run['period']}" if report.horizon else "")
+    return _image(
+        network_chart(sites, lanes, title=title, lanes_in_use=in_use),
+        f"{title}: lanes by flow, lanes at capacity dashed red, customers left short ringed",
     )
 
 
-def _moves_section(engine: Engine, report: WeekReport) -> str:
+def _price_charts(engine: Engine, report: WeekReport) -> str:
     charts = ""
     for site in report.moves["site"].head(PRICE_CHARTS) if not report.moves.empty else []:
-        history = site_prices(engine, site, last=report.period)
-        charts += _image(price_chart(history), f"price of {site} per week with its range")
-    return _report_section(report, "moves", charts)
-
-
-def _binding_section(report: WeekReport) -> str:
-    return _report_section(report, "binding")
-
-
-def _shortages_section(report: WeekReport) -> str:
-    return _report_section(report, "shortages")
+        if report.horizon:
+            history = site_prices(engine, site, run_id=_run_id(report))
+            title = f"{site}: price per unit in linked horizon {report.run['period']}"
+        else:
+            history = site_prices(engine, site, last=report.period)
+            title = f"{site}: price per unit"
+        chart = price_chart(history, title=title, currency=report.currency)
+        charts += _image(chart, f"{title}, per week with its range")
+    return charts
 
 
 def write_week_report(

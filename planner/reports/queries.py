@@ -29,8 +29,11 @@ from decimal import Decimal
 import pandas as pd
 from sqlalchemy import Connection, Engine, text
 
+from planner.database.settings import DEFAULT_CURRENCY, currency
 from planner.errors import PlannerError
 from planner.periods import parse_week, week_code
+from planner.reports.catalog import RunInfo, choose_run
+from planner.reports.formats import Precision
 
 __all__ = [
     "READER_ROLE",
@@ -382,12 +385,15 @@ def previous_week(period: str) -> str:
 
 
 def cost_breakdown(engine: Engine, period: str, *, run_id: int | None = None) -> pd.DataFrame:
-    """A week's cost by echelon and mode, plus warehouse handling and shortage penalties.
+    """A week's cost by echelon and mode, plus warehouse handling, stock holding and shortage penalties.
 
-    The rows add up to the run's cost: lane costs (``flow * unit_cost``) per echelon
-    (``plant->warehouse``, ``warehouse->customer``, ...) and mode over the lanes in
-    use, then ``warehouse handling`` (throughput times handling cost) and
-    ``shortage penalty``.
+    The rows add up to the week's cost (for a week run, the run's cost): lane
+    costs (``flow * unit_cost``) over the lanes in use, grouped by echelon
+    (``plant->warehouse``, ``plant->customer``, ``warehouse->customer``, ...,
+    in the order goods move) then mode, then ``warehouse handling``
+    (throughput times handling cost), ``stock holding`` (units carried to the
+    next week times the holding cost; linked horizons only) and ``shortage
+    penalty``.
 
     Parameters
     ----------
@@ -395,7 +401,8 @@ def cost_breakdown(engine: Engine, period: str, *, run_id: int | None = None) ->
     period : str
         ISO week.
     run_id : int, optional
-        A week run of ``period`` (default: its latest optimal run).
+        A run that covers ``period``: a week run of it, or a linked horizon
+        (default: the week's latest optimal run).
 
     Returns
     -------
@@ -414,7 +421,7 @@ def cost_breakdown(engine: Engine, period: str, *, run_id: int | None = None) ->
 
 _COST_BREAKDOWN = """
 SELECT echelon, mode, units, cost FROM (
-    SELECT 1 AS part, ov.kind || '->' || dv.kind AS echelon, l.mode,
+    SELECT 1 AS part, ok.rank * 3 + dk.rank AS stage, ov.kind || '->' || dv.kind AS echelon, l.mode,
            sum(f.flow) AS units, sum(f.flow * lr.unit_cost) AS cost
     FROM run_flow f
     JOIN lane_rate lr ON lr.batch_id = :batch_id AND lr.period_id = :period_id
@@ -422,36 +429,49 @@ SELECT echelon, mode, units, cost FROM (
     JOIN lane l ON l.id = f.lane_id
     JOIN site_version ov ON ov.batch_id = :batch_id AND ov.site_id = l.origin_id
     JOIN site_version dv ON dv.batch_id = :batch_id AND dv.site_id = l.destination_id
+    JOIN (VALUES ('plant', 0), ('warehouse', 1), ('customer', 2)) ok (kind, rank) ON ok.kind = ov.kind
+    JOIN (VALUES ('plant', 0), ('warehouse', 1), ('customer', 2)) dk (kind, rank) ON dk.kind = dv.kind
     WHERE f.run_id = :run_id AND f.period = :period AND f.flow > 0
-    GROUP BY 2, 3
+    GROUP BY 2, 3, 4
     UNION ALL
-    SELECT 2, 'warehouse handling', '', sum(r.throughput_flow),
+    SELECT 2, 0, 'warehouse handling', '', sum(r.throughput_flow),
            sum(r.throughput_flow * sv.handling_cost)
     FROM run_site_price r
     JOIN site_version sv ON sv.batch_id = :batch_id AND sv.site_id = r.site_id
     WHERE r.run_id = :run_id AND r.period = :period AND sv.handling_cost > 0
     HAVING count(*) > 0
     UNION ALL
-    SELECT 3, 'shortage penalty', '', sum(r.shortage), sum(r.shortage * d.shortage_penalty)
+    SELECT 3, 0, 'stock holding', '', sum(s.stock), sum(s.stock * s.holding_cost)
+    FROM run_stock s
+    WHERE s.run_id = :run_id AND s.period = :period AND s.stock > 0
+    HAVING count(*) > 0
+    UNION ALL
+    SELECT 4, 0, 'shortage penalty', '', sum(r.shortage), sum(r.shortage * d.shortage_penalty)
     FROM run_site_price r
     JOIN demand d ON d.batch_id = :batch_id AND d.period_id = :period_id AND d.site_id = r.site_id
     WHERE r.run_id = :run_id AND r.period = :period AND r.shortage > 0
     HAVING count(*) > 0
 ) parts
-ORDER BY part, cost DESC, echelon, mode
+ORDER BY part, stage, mode = '', mode, echelon
 """
 
 
 def _week_run(conn: Connection, period: str, run_id: int | None) -> dict | None:
-    """``run_id``, ``period_id``, ``period`` (code), ``batch_id`` of the week run reported on, or None.
+    """``run_id``, ``period_id``, ``period`` (code), ``batch_id`` of the optimal run reported on in ``period``, or None.
 
-    Which run is the latest is decided by the ``run_summary`` view alone.
+    Without ``run_id``, the week's latest optimal run (decided by the
+    ``latest_week_run`` view alone). A linked horizon stores no batch: each of
+    its weeks was read from the newest batch loaded before the run was stored.
     """
     row = conn.execute(
         text(
-            f"SELECT s.run_id, r.period_id, s.period, r.batch_id FROM {view_source('run_summary', run_id)} s "
-            "JOIN solve_run r ON r.id = s.run_id "
-            "WHERE s.period = :period AND s.kind = 'week' AND s.status = 'optimal'"
+            "SELECT r.id AS run_id, p.id AS period_id, p.code AS period, coalesce(r.batch_id, ("
+            "  SELECT max(ps.batch_id) FROM period_snapshot ps JOIN load_batch b ON b.id = ps.batch_id"
+            "  WHERE ps.period_id = p.id AND b.loaded_at <= r.started_at)) AS batch_id "
+            "FROM solve_run r JOIN period f ON f.id = r.first_period_id JOIN period l ON l.id = r.last_period_id "
+            "JOIN period p ON p.code = :period AND p.starts_on BETWEEN f.starts_on AND l.starts_on "
+            "WHERE r.status = 'optimal' AND r.id = coalesce(CAST(:run_id AS bigint), "
+            "  (SELECT run_id FROM latest_week_run WHERE period = :period))"
         ),
         {"period": period, "run_id": run_id},
     ).mappings().first()
@@ -459,13 +479,19 @@ def _week_run(conn: Connection, period: str, run_id: int | None) -> dict | None:
 
 
 def price_moves(
-    engine: Engine, period: str, *, top: int | None = 10, run_id: int | None = None
+    engine: Engine,
+    period: str,
+    *,
+    top: int | None = 10,
+    run_id: int | None = None,
+    previous_run_id: int | None = None,
 ) -> pd.DataFrame:
     """Sites whose price changed most from the previous ISO week, largest change first.
 
-    Compares the prices of ``period`` (its latest optimal run, or ``run_id``) with
-    the latest optimal run of the week before; sites whose price did not change
-    are left out.
+    Compares the prices of ``period`` (its latest optimal run, or ``run_id``)
+    with those of the week before: in ``previous_run_id`` when given (a linked
+    horizon's own previous week), else in that week's latest optimal run.
+    Sites whose price did not change are left out.
 
     Returns
     -------
@@ -480,11 +506,12 @@ def price_moves(
     # a nested loop of every site against every site (0.5 s at 2,200 sites
     # after three years of history).
     columns = "site, kind, region, price, price_low, price_high, degenerate"
+    previous_source = "site_price_history" if previous_run_id is None else "site_price_history_of_run(:previous_run)"
     with _connect(engine) as conn:
         cur = _frame(conn, f"SELECT {columns} FROM {view_source('site_price_history', run_id)} "
                            "WHERE period = :period", {"period": period, "run_id": run_id})
-        prev = _frame(conn, "SELECT site, price AS previous_price FROM site_price_history WHERE period = :previous",
-                      {"previous": previous_week(period)})
+        prev = _frame(conn, f"SELECT site, price AS previous_price FROM {previous_source} WHERE period = :previous",
+                      {"previous": previous_week(period), "previous_run": previous_run_id})
     moved = cur.merge(prev, on="site", how="inner")
     moved = moved[moved["price"] != moved["previous_price"]]
     moved.insert(5, "change", moved["price"] - moved["previous_price"])
@@ -512,7 +539,7 @@ def network_of_week(
     Returns
     -------
     sites : pandas.DataFrame
-        ``site``, ``kind``, ``region``, ``x``, ``y``.
+        ``site``, ``kind``, ``region``, ``x``, ``y``, ``units_short`` (at customers left short, else None).
     lanes : pandas.DataFrame
         ``origin``, ``destination``, ``mode``, ``flow``, ``at_capacity``.
     lanes_in_use : int
@@ -523,8 +550,10 @@ def network_of_week(
     with _connect(engine) as conn:
         sites = _frame(
             conn,
-            f"SELECT site, kind, region, x, y FROM {view_source('site_price_history', run_id)} "
-            "WHERE period = :period ORDER BY site",
+            f"SELECT h.site, h.kind, h.region, h.x, h.y, s.units_short "
+            f"FROM {view_source('site_price_history', run_id)} h "
+            f"LEFT JOIN {view_source('shortage', run_id)} s ON s.customer = h.site AND s.period = h.period "
+            "WHERE h.period = :period ORDER BY h.site",
             params,
         )
         lanes = _frame(
@@ -543,12 +572,15 @@ def network_of_week(
 class WeekReport:
     """Everything the weekly report shows about one week.
 
-    ``run`` is the ``run_summary`` row of the run reported on, or None when the
-    week has no optimal run (then ``message`` says why and the tables are empty).
+    ``run`` is the ``run_summary`` row of the run reported on (a week run, or
+    the linked horizon the week belongs to), or None when the week has no
+    optimal run (then ``message`` says why and what to do, and the tables are
+    empty). ``previous_period`` is the week the prices are compared with, or
+    None when there is none to compare with (a note says why).
     """
 
-    period: str
-    previous_period: str
+    period: str | None
+    previous_period: str | None
     run: dict | None
     cost: pd.DataFrame
     binding: pd.DataFrame
@@ -556,11 +588,18 @@ class WeekReport:
     shortages: pd.DataFrame
     message: str = ""
     notes: list[str] = field(default_factory=list)
+    currency: str = DEFAULT_CURRENCY
+    precision: Precision = Precision()
 
     @property
     def empty(self) -> bool:
         """True when there is no run to report on."""
         return self.run is None
+
+    @property
+    def horizon(self) -> bool:
+        """True when the week is one week of a linked horizon run."""
+        return self.run is not None and self.run["kind"] == "horizon"
 
     def sections(self) -> dict[str, pd.DataFrame]:
         """The report's tables by section name (:data:`REPORT_SECTIONS`)."""
@@ -568,7 +607,7 @@ class WeekReport:
 
     @property
     def cost_total(self) -> Decimal:
-        """Sum of the cost breakdown; equals the run's cost."""
+        """Sum of the cost breakdown: the week's cost (for a week run, the run's cost)."""
         return sum(self.cost["cost"], Decimal(0))
 
 
@@ -579,18 +618,42 @@ def _newest_attempt(conn: Connection, period: str) -> dict | None:
     return None if row is None else dict(row)
 
 
-def week_report(engine: Engine, period: str, *, top: int = 10, run_id: int | None = None) -> WeekReport:
+def _comparison(conn: Connection, run: RunInfo, period: str) -> tuple[str | None, int | None, str]:
+    """The week ``period`` is compared with: ``(week, run of that week or None for its latest, why not)``.
+
+    Inside a linked horizon, the horizon's own previous week; otherwise the
+    previous ISO week's latest optimal run. None, with the reason, when there
+    is no such week to compare with.
+    """
+    previous = previous_week(period)
+    if run.kind != "week" and run.covers(previous):
+        return previous, run.run_id, ""
+    if conn.execute(text("SELECT 1 FROM latest_week_run WHERE period = :p"), {"p": previous}).first():
+        return previous, None, ""
+    loaded = conn.execute(
+        text("SELECT 1 FROM period p JOIN period_snapshot ps ON ps.period_id = p.id WHERE p.code = :p LIMIT 1"),
+        {"p": previous},
+    ).first()
+    why = "was never loaded" if loaded is None else "has no optimal run"
+    return None, None, f"no previous week to compare prices with: {previous} {why}"
+
+
+def week_report(
+    engine: Engine, period: str | None = None, *, top: int = 10, run_id: int | None = None
+) -> WeekReport:
     """The weekly report of ``period``: cost, binding capacities, price moves, shortages.
 
     Parameters
     ----------
     engine : sqlalchemy.Engine
-    period : str
-        ISO week, for example ``"2026-W49"``.
+    period : str, optional
+        ISO week, for example ``"2026-W49"``; may be left out with a ``run_id``
+        of one week.
     top : int
         How many binding capacities and price moves to show.
     run_id : int, optional
-        A week run of ``period`` to report on (default: its latest optimal run).
+        Any optimal run to report on (default: the week's latest optimal run);
+        for a linked horizon, ``period`` picks the week.
 
     Returns
     -------
@@ -599,63 +662,48 @@ def week_report(engine: Engine, period: str, *, top: int = 10, run_id: int | Non
 
     Raises
     ------
-    ValueError
-        If ``period`` is not an ISO week code.
     PlannerError
-        If ``run_id`` is not a week run of ``period``.
+        A bad week code, an unknown run, a week the run does not cover.
+    NotOptimal
+        When run ``run_id`` did not end optimal.
     """
-    _check_week(period)
-    previous = previous_week(period)
-    with _connect(engine) as conn:
-        runs = _frame(
-            conn,
-            f"SELECT * FROM {view_source('run_summary', run_id)} WHERE period = :period AND kind = 'week'",
-            {"period": period, "run_id": run_id},
-        )
-        newest = _newest_attempt(conn, period)
-        previous_solved = conn.execute(
-            text("SELECT 1 FROM run_summary WHERE period = :previous AND kind = 'week'"),
-            {"previous": previous},
-        ).first()
-    if run_id is not None and runs.empty:
-        raise PlannerError(f"run {run_id} is not a week run of {period}; list runs with `planner periods`")
+    chosen = choose_run(engine, period=period, run_id=run_id)
     empty = pd.DataFrame()
-    if runs.empty:
-        if newest is None:
-            message = f"no run of {period} yet; solve it with `planner solve --period {period}`"
-        else:
-            message = (
-                f"no optimal run of {period}: its latest run {newest['id']} ended {newest['status']}; "
-                f"see `planner certificate --period {period}`"
-            )
-        return WeekReport(period, previous, None, empty, empty, empty, empty, message=message)
-    run = runs.iloc[0].to_dict()
-    if run["status"] != "optimal":
-        return WeekReport(
-            period, previous, run, empty, empty, empty, empty,
-            message=f"run {run['run_id']} of {period} ended {run['status']}: nothing to report",
-        )
+    with _connect(engine) as conn:
+        money = currency(conn)
+        if chosen.run is None:
+            return WeekReport(period, None, None, empty, empty, empty, empty, message=chosen.message, currency=money)
+        info, period = chosen.run, chosen.period
+        run = _frame(conn, "SELECT * FROM run_summary_of_run(:run)", {"run": info.run_id}).iloc[0].to_dict()
+        newest = _newest_attempt(conn, period)
+        previous, previous_run, why_not = _comparison(conn, info, period)
     notes = []
-    if run_id is None and newest is not None and newest["id"] != run["run_id"]:
+    if run_id is None and newest is not None and newest["id"] != info.run_id:
         notes.append(
             f"the newest run of {period} (run {newest['id']}) ended {newest['status']}; "
-            f"this report shows run {run['run_id']}, the latest optimal one"
+            f"this report shows run {info.run_id}, the latest optimal one"
         )
-    if previous_solved is None:
-        notes.append(f"no optimal run of the previous week {previous} to compare prices with")
-    full = full_without_value(engine, period, run_id=run_id)
+    if why_not:
+        notes.append(why_not)
+    full = full_without_value(engine, period, run_id=info.run_id)
     if full:
         notes.append(
             f"{full} more {'capacity is' if full == 1 else 'capacities are'} full but worth nothing more "
             "(one more unit would save nothing: status 'full, no value' in binding_capacity)"
         )
+    moves = (
+        price_moves(engine, period, top=top, run_id=info.run_id, previous_run_id=previous_run)
+        if previous is not None else pd.DataFrame()
+    )
     return WeekReport(
         period=period,
         previous_period=previous,
         run=run,
-        cost=cost_breakdown(engine, period, run_id=run_id),
-        binding=binding_capacities(engine, period, top=top, run_id=run_id),
-        moves=price_moves(engine, period, top=top, run_id=run_id),
-        shortages=shortages(engine, period, run_id=run_id),
+        cost=cost_breakdown(engine, period, run_id=info.run_id),
+        binding=binding_capacities(engine, period, top=top, run_id=info.run_id),
+        moves=moves,
+        shortages=shortages(engine, period, run_id=info.run_id),
         notes=notes,
+        currency=money,
+        precision=Precision(info.cost_decimals, info.quantity_decimals),
     )

@@ -21,8 +21,9 @@ from planner.core.network import ArcKind
 from planner.core.prices import price_ranges
 from planner.core.rates import rate_ranges
 from planner.core.residual import feasible_potential, residual_graph
-from planner.database.reopen import reopen_week
+from planner.database.reopen import reopen_run
 from planner.errors import PlannerError
+from planner.reports.catalog import choose_run
 
 __all__ = ["LANE_STATES", "LaneRateRange", "lane_rate_ranges"]
 
@@ -75,7 +76,7 @@ def _route_text(steps: list[Step]) -> str:
 
 def lane_rate_ranges(
     engine: Engine,
-    period: str,
+    period: str | None,
     *,
     lanes: list[str] | None = None,
     site: str | None = None,
@@ -88,8 +89,8 @@ def lane_rate_ranges(
     Parameters
     ----------
     engine : sqlalchemy.Engine
-    period : str
-        ISO week.
+    period : str, optional
+        ISO week; may be left out with a ``run_id`` of one week.
     lanes : list of str, optional
         Lane labels as the reports write them (``W01->C03 road``).
     site : str, optional
@@ -97,7 +98,8 @@ def lane_rate_ranges(
     state : {"idle", "in use", "at capacity", "at minimum"}, optional
         Only lanes in this state.
     run_id : int, optional
-        A week run of ``period`` instead of its latest optimal one.
+        Any optimal run instead of the week's latest optimal one; for a linked
+        horizon, ``period`` picks the week.
     routes : bool
         Also give the route that sets each end.
 
@@ -108,17 +110,21 @@ def lane_rate_ranges(
     """
     if state is not None and state not in LANE_STATES:
         raise PlannerError(f"unknown lane state {state!r}; choose one of {', '.join(LANE_STATES)}")
+    picked = choose_run(engine, period=period, run_id=run_id)
+    if picked.run is None:
+        raise PlannerError(picked.message)
+    period = picked.period
     with engine.connect() as conn:
-        stored = reopen_week(conn, period, run_id)
-    snap, inst, flow = stored.snapshot, stored.instance, stored.flow
-    labels = snap.lane_labels()
-    arcs = inst.lane_arc[0]
+        stored = reopen_run(conn, picked.run.run_id)
+    inst, flow, labels = stored.instance, stored.flow, stored.lane_labels
+    t = stored.period_index(period)
+    arcs = inst.lane_arc[t]
     states = _states(inst, flow, arcs)
-    chosen = _chosen_lanes(snap, labels, states, lanes, site, state, period)
+    chosen = _chosen_lanes(stored, t, states, lanes, site, state, period)
     res = residual_graph(inst, flow)
     pi = price_ranges(inst, res, feasible_potential(inst, res)).price
     found = rate_ranges(inst, flow, res, pi, arcs[chosen], routes=routes)
-    names = RouteNames(snap.site_code, labels, [period], snap.site_kind_name)
+    names = RouteNames(stored.site_code, labels, stored.periods, stored.site_kind_name)
     cd, qd = stored.scaling.cost_decimals, stored.scaling.quantity_decimals
     out = []
     for i, lane in enumerate(chosen.tolist()):
@@ -147,21 +153,25 @@ def _states(inst, flow: np.ndarray, arcs: np.ndarray) -> np.ndarray:
     return state
 
 
-def _chosen_lanes(snap, labels, states, lanes, site, state, period) -> np.ndarray:
-    """Indices of the lanes that match the filters, in label order."""
-    keep = np.ones(labels.shape[0], dtype=bool)
+def _chosen_lanes(stored, t: int, states, lanes, site, state, period) -> np.ndarray:
+    """Indices of the lanes of week ``t`` of the stored run that match the filters, in label order."""
+    labels = stored.lane_labels
+    keep = stored.lane_present[t].copy()
     if lanes:
-        unknown = sorted(set(lanes) - set(labels.tolist()))
+        present = labels[keep]
+        unknown = sorted(set(lanes) - set(present.tolist()))
         if unknown:
+            example = present[0] if present.shape[0] else "P01->W01 road"
             raise PlannerError(
-                f"no lane {', '.join(unknown)} in {period}; write lanes as ORIGIN->DESTINATION MODE, e.g. {labels[0]}"
+                f"no lane {', '.join(unknown)} in {period}; write lanes as ORIGIN->DESTINATION MODE, e.g. {example}"
             )
         keep &= np.isin(labels, lanes)
     if site is not None:
-        at = np.flatnonzero(snap.site_code == site)
+        at = np.flatnonzero(stored.site_code == site)
         if at.shape[0] == 0:
-            raise PlannerError(f"site {site} is not in the snapshot of {period}; check the site code")
-        keep &= (snap.week.lane_origin == at[0]) | (snap.week.lane_destination == at[0])
+            raise PlannerError(f"site {site} is not in the input of {period}; check the site code")
+        week = stored.weeks[t]
+        keep &= (week.lane_origin == at[0]) | (week.lane_destination == at[0])
     if state is not None:
         keep &= states == state
     chosen = np.flatnonzero(keep)

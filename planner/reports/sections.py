@@ -2,9 +2,10 @@
 
 The command line (rich tables), CSV and JSON (for scripts) and the HTML report
 all take a section's title, its columns, their headings and how each figure is
-written from :data:`SECTIONS`, so a column has one name and one heading
-everywhere. Headings may name the week reported on (``{period}``) and the week
-compared with (``{previous}``).
+written from :data:`SECTIONS`, in this order, so a column has one name and one
+heading everywhere. Headings may name the week reported on (``{period}``) and
+the week compared with (``{previous}``); money headings end with the
+database's currency code, e.g. ``cost (EUR)``.
 """
 
 from __future__ import annotations
@@ -20,8 +21,9 @@ __all__ = ["SECTIONS", "Field", "Section", "cell_text"]
 class Field:
     """One column of a section: the frame's column, its heading, and how its figures read.
 
-    ``kind`` is ``text``, ``money`` (two decimals or more), ``units`` (as many
-    decimals as the figure has), ``rank`` or ``flag`` (``yes`` or blank).
+    ``kind`` is ``text``, ``per_unit`` (money per unit), ``total`` (money),
+    ``units`` (a quantity), ``rank`` or ``flag`` (``yes`` or blank in tables,
+    ``true``/``false`` for scripts); see :mod:`planner.reports.formats`.
     """
 
     column: str
@@ -30,7 +32,11 @@ class Field:
 
     @property
     def numeric(self) -> bool:
-        return self.kind in ("money", "units", "rank")
+        return self.kind in ("per_unit", "total", "units", "rank")
+
+    @property
+    def money(self) -> bool:
+        return self.kind in ("per_unit", "total")
 
 
 @dataclass(frozen=True)
@@ -43,11 +49,27 @@ class Section:
     empty: str  #: said instead of the table when it has no rows
     note: str = ""  #: one sentence shown under the title
 
-    def heading(self, field: Field, period: str, previous: str) -> str:
-        return field.heading.format(period=period, previous=previous)
+    def heading(self, field: Field, period: str, previous: str | None, currency: str = "") -> str:
+        """A column's heading: the weeks named, the currency after money."""
+        words = field.heading.format(period=period, previous=previous or "previous week")
+        return f"{words} ({currency})" if currency and field.money else words
 
-    def titled(self, period: str, previous: str) -> str:
+    def titled(self, period: str, previous: str | None) -> str:
+        """The section's title; without "versus ..." when there is no previous week to compare with."""
+        if previous is None:
+            return self.title.split(" versus ")[0]
         return self.title.format(period=period, previous=previous)
+
+    def said_when_empty(self, period: str, previous: str | None) -> str:
+        """What the section says instead of an empty table."""
+        if previous is None and "{previous}" in self.empty:
+            return f"no previous week to compare {period} with"
+        return self.empty.format(period=period, previous=previous)
+
+    @property
+    def kinds(self) -> dict[str, str]:
+        """Column -> kind, for :mod:`planner.reports.formats`."""
+        return {f.column: f.kind for f in self.fields if f.kind != "text"}
 
     @property
     def columns(self) -> list[str]:
@@ -59,15 +81,17 @@ SECTIONS: tuple[Section, ...] = (
         "cost",
         "Cost by echelon and mode",
         (Field("echelon", "echelon"), Field("mode", "mode"), Field("units", "units", "units"),
-         Field("cost", "cost", "money")),
+         Field("cost", "cost", "total")),
         "nothing was moved",
+        "Lanes by echelon, then mode; then warehouse handling, stock holding (linked horizons) and "
+        "shortage penalties. They add up to the week's cost.",
     ),
     Section(
         "binding",
         "Top binding capacities",
         (Field("rank", "rank", "rank"), Field("kind", "kind"), Field("label", "capacity of"),
-         Field("capacity_value", "value of one more unit", "money"),
-         Field("value_less", "cost of one unit less", "money"),
+         Field("capacity_value", "value of one more unit", "per_unit"),
+         Field("value_less", "cost of one unit less", "per_unit"),
          Field("capacity", "capacity", "units"), Field("flow", "flow", "units")),
         "no lane or warehouse is worth more capacity",
         "Exact one-sided values: what one more unit of capacity saves, and what one unit less costs "
@@ -78,20 +102,20 @@ SECTIONS: tuple[Section, ...] = (
         "moves",
         "Biggest price moves versus {previous}",
         (Field("site", "site"), Field("kind", "kind"), Field("region", "region"),
-         Field("previous_price", "{previous}", "money"), Field("price", "{period}", "money"),
-         Field("change", "change", "money"), Field("price_low", "low", "money"),
-         Field("price_high", "high", "money"), Field("degenerate", "not unique", "flag")),
+         Field("previous_price", "{previous}", "per_unit"), Field("price", "{period}", "per_unit"),
+         Field("change", "change", "per_unit"), Field("price_low", "price low", "per_unit"),
+         Field("price_high", "price high", "per_unit"), Field("degenerate", "degenerate", "flag")),
         "no price moved versus {previous}",
-        "Prices per unit; low and high bound every optimal price ('-': no further unit can be "
-        "moved that way); a price that is not unique may move with no change in the data.",
+        "Prices per unit; price low and price high bound every optimal price ('-': no further unit can be "
+        "moved that way); a degenerate price is not unique and may move with no change in the data.",
     ),
     Section(
         "shortages",
         "Shortages",
         (Field("customer", "customer"), Field("name", "name"), Field("region", "region"),
          Field("demand", "demand", "units"),
-         Field("units_short", "units short", "units"), Field("penalty", "penalty per unit", "money"),
-         Field("penalty_cost", "penalty cost", "money")),
+         Field("units_short", "units short", "units"), Field("penalty", "penalty per unit", "per_unit"),
+         Field("penalty_cost", "penalty cost", "total")),
         "no shortage: every customer's demand is met",
     ),
 )
@@ -103,9 +127,9 @@ def cell_text(field: Field, value) -> str:
     Examples
     --------
     >>> from decimal import Decimal
-    >>> cell_text(Field("cost", "cost", "money"), Decimal("12.5000")), cell_text(Field("u", "u", "units"), None)
+    >>> cell_text(Field("cost", "cost", "total"), Decimal("12.5000")), cell_text(Field("u", "u", "units"), None)
     ('12.50', '-')
-    >>> cell_text(Field("degenerate", "not unique", "flag"), True)
+    >>> cell_text(Field("degenerate", "degenerate", "flag"), True)
     'yes'
     """
     if field.kind == "flag":
@@ -116,4 +140,4 @@ def cell_text(field: Field, value) -> str:
         return "-"
     if field.kind == "rank":
         return str(int(value))
-    return format_number(value, 2 if field.kind == "money" else 0)
+    return format_number(value, 2 if field.money else 0)

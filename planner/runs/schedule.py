@@ -24,12 +24,12 @@ from dataclasses import dataclass, field
 from typing import Callable, Iterable, Iterator
 
 from sqlalchemy import Connection, Engine, text
-from sqlalchemy.exc import SQLAlchemyError
+from sqlalchemy.exc import InterfaceError, OperationalError, SQLAlchemyError
 
 from planner import __version__
 from planner.database.locks import lock_timeout, planner_lock, week_lock_name
 from planner.database.snapshot import Scaling, current_batch, run_fingerprint
-from planner.errors import LockTimeout, PlannerError
+from planner.errors import DatabaseUnavailable, LockTimeout, PlannerError
 from planner.runs.weekly import RunSummary, solve_period
 
 #: Longest stored message a resolve log line quotes.
@@ -41,13 +41,16 @@ class WeekOutcome:
     """One week of a many-week command: a run, or why there is none.
 
     ``locked`` is True when the week was not solved because another session
-    held its lock for longer than the lock timeout.
+    held its lock for longer than the lock timeout; ``lost`` holds the error
+    when the database could not be reached or the connection was lost (nothing
+    of that week was stored: a run is stored in one transaction).
     """
 
     period: str
     summary: RunSummary | None
     note: str = ""
     locked: bool = False
+    lost: BaseException | None = None
 
     @property
     def ok(self) -> bool:
@@ -160,7 +163,8 @@ def _guarded(call: Callable[[], RunSummary], period: str) -> WeekOutcome:
         return WeekOutcome(period, call())
     except (PlannerError, SQLAlchemyError, BrokenProcessPool) as err:
         note = str(err) if isinstance(err, PlannerError) else f"{type(err).__name__}: {err}"
-        return WeekOutcome(period, None, note, locked=isinstance(err, LockTimeout))
+        lost = err if isinstance(err, (DatabaseUnavailable, OperationalError, InterfaceError)) else None
+        return WeekOutcome(period, None, note, locked=isinstance(err, LockTimeout), lost=lost)
 
 
 def is_stale(conn: Connection, period: str, scaling: Scaling) -> tuple[bool, str]:
