@@ -26,7 +26,7 @@ def shown_value(value: str) -> str:
     >>> shown_value("P1")
     "'P1'"
     >>> shown_value("X" * 3000)[-28:]
-    "XXXXXX'... (3,000 characters)"
+    "XXXXX'... (3,000 characters)"
     """
     if len(value) <= SHOWN_VALUE_CHARS:
         return repr(value)

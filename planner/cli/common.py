@@ -1,8 +1,10 @@
 """What every command shares: the Typer app, the consoles, common options, errors.
 
 Exit codes: 0 success, 1 a run did not end optimal, 2 bad input or usage,
-4 another session held a lock the command needed for longer than the lock
-timeout (``PLANNER_LOCK_TIMEOUT``); what the lock guards was not done.
+3 the database connection failed or was lost midway (a load or a run's store
+is one transaction: it was committed whole or not at all), 4 another session
+held a lock the command needed for longer than the lock timeout
+(``PLANNER_LOCK_TIMEOUT``); what the lock guards was not done.
 """
 
 from __future__ import annotations
@@ -27,6 +29,8 @@ err_console = Console(stderr=True, width=None if sys.stderr.isatty() else 132)
 DB_HELP = "PostgreSQL URL (default: $PLANNER_DATABASE_URL, else the embedded server)."
 DATABASE_URL = typer.Option(None, "--database-url", help=DB_HELP)
 COST_DECIMALS = typer.Option(4, "--cost-decimals", min=0, max=12, help="Decimal places kept for unit costs.")
+#: Exit code of a command whose database connection failed or was lost midway.
+EXIT_CONNECTION = 3
 #: Exit code of a command that gave up waiting for a lock another session held.
 EXIT_LOCKED = 4
 QUANTITY_DECIMALS = typer.Option(0, "--quantity-decimals", min=0, max=6, help="Decimal places kept for quantities.")

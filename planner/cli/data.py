@@ -11,14 +11,15 @@ from rich.table import Table
 from planner.cli.common import (
     COST_DECIMALS,
     DATABASE_URL,
+    EXIT_CONNECTION,
     QUANTITY_DECIMALS,
     app,
     certificate_text,
     console,
     engine,
+    err_console,
     fail,
     money,
-    err_console,
     say,
 )
 from planner.errors import PlannerError
@@ -39,10 +40,6 @@ def init(database_url: Optional[str] = DATABASE_URL) -> None:
     except PlannerError as err:
         fail(err)
     say(f"schema is up to date on {connect.masked_url(url)}")
-
-
-#: Exit code of a command whose database connection failed or was lost midway.
-EXIT_CONNECTION = 3
 
 
 @app.command()
@@ -85,7 +82,9 @@ def load(
     except PlannerError as err:
         fail(err)
     except (psycopg.OperationalError, sa.exc.OperationalError, sa.exc.InterfaceError) as err:
-        cause = str(getattr(err, "orig", None) or err).strip().splitlines()[0]
+        from planner.database.connect import database_error_cause
+
+        cause = database_error_cause(err)
         fail(PlannerError(
             f"the database connection failed during the load ({cause}); a load is one transaction, "
             "committed whole or not at all: `planner periods` shows the batches now current"

@@ -10,6 +10,7 @@ from rich.table import Column, Table
 from planner.cli.common import (
     COST_DECIMALS,
     DATABASE_URL,
+    EXIT_CONNECTION,
     EXIT_LOCKED,
     QUANTITY_DECIMALS,
     app,
@@ -87,13 +88,17 @@ def _solve_weeks(url: str, chosen: list[str], scaling, workers: Optional[int]) -
         outcomes = solve_many(
             url, chosen, scaling, workers=workers, on_done=lambda _o: progress.advance(task)
         )
-    _summary_table([o.summary for o in outcomes if o.summary is not None], title=None)
+    summaries = [o.summary for o in outcomes if o.summary is not None]
+    if summaries:
+        _summary_table(summaries, title=None)
     for o in outcomes:
         message = o.note if o.summary is None else o.summary.message
         if message:
             err_console.print(f"{o.period}: {message}", markup=False, highlight=False, soft_wrap=True)
     if any(o.locked for o in outcomes):
         raise typer.Exit(EXIT_LOCKED)
+    if any(o.lost for o in outcomes):
+        raise typer.Exit(EXIT_CONNECTION)
     if any(not o.ok for o in outcomes):
         raise typer.Exit(1)
 

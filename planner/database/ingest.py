@@ -329,15 +329,7 @@ def _parse(name: str, data: bytes, problems: list[Problem]) -> pd.DataFrame | No
         )
         return None
     columns = FILE_COLUMNS[name]
-    separator = _other_separator(text)
-    if separator is not None:
-        problems.append(
-            Problem(
-                name, 1, None, None,
-                f"the header is separated by {separator} instead of commas; save the file as "
-                "comma-separated CSV (columns separated by ',', a '.' as decimal point)",
-            )
-        )
+    if _other_separator(name, text, problems):
         return None
     try:
         # header=None keeps the header as row 0, so that the parser measures every row
@@ -401,21 +393,31 @@ def _parse(name: str, data: bytes, problems: list[Problem]) -> pd.DataFrame | No
     return frame[~blank_row].reset_index(drop=True)
 
 
-def _other_separator(text: str) -> str | None:
-    """The name of the separator of a header line without commas, if it looks like one.
+def _other_separator(name: str, text: str, problems: list[Problem]) -> bool:
+    """Flag a header line separated by semicolons, tabs or bars instead of commas.
 
     Examples
     --------
-    >>> _other_separator("period;site;quantity\\n"), _other_separator("site,kind\\n")
-    ('semicolons', None)
+    >>> problems = []
+    >>> _other_separator("supply.csv", "period;site;quantity\\n", problems), problems[0].reason[:40]
+    (True, 'the header is separated by semicolons in')
+    >>> _other_separator("sites.csv", "site,kind\\n", problems)
+    False
     """
     header = text.split("\n", 1)[0]
     if "," in header:
-        return None
+        return False
     for mark, words in ((";", "semicolons"), ("\t", "tabs"), ("|", "vertical bars")):
         if mark in header:
-            return words
-    return None
+            problems.append(
+                Problem(
+                    name, 1, None, None,
+                    f"the header is separated by {words} instead of commas; save the file as "
+                    "comma-separated CSV (columns separated by ',', a '.' as decimal point)",
+                )
+            )
+            return True
+    return False
 
 
 def _check_header(name: str, header: list[str], problems: list[Problem]) -> bool:
@@ -1330,6 +1332,15 @@ def load_folder(engine: sa.Engine, folder: str | Path, options: LoadOptions = Lo
     with engine.begin() as connection:
         connection.execute(sa.text("ANALYZE site, site_version, period_snapshot, supply, demand, lane, lane_rate"))
         ensure_partitions(connection, validated.periods)
+    return _created(validated, batch_id, new_sites, new_lanes, changes, new_periods, options)
+
+
+def _created(
+    validated: ValidatedFolder, batch_id: int, new_sites: int, new_lanes: int,
+    changes: list[PeriodChange], new_periods: int, options: LoadOptions,
+) -> LoadResult:
+    """The result of a load that wrote a new batch, with its summary lines."""
+    path = validated.folder
     rows = {name: digest.rows for name, digest in validated.files.items()}
     counts = ", ".join(f"{name} {count:,}" for name, count in rows.items())
     unchanged = len(validated.periods) - new_periods - len(changes)
