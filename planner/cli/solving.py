@@ -151,6 +151,8 @@ def resolve(
         fail(err)
     if report.locked:
         raise typer.Exit(EXIT_LOCKED)
+    if any(o.lost for o in report.outcomes):
+        raise typer.Exit(EXIT_CONNECTION)
     if any(not o.ok for o in report.outcomes):
         raise typer.Exit(1)
 
