@@ -115,3 +115,25 @@ def test_backend_terminated_during_a_store(database_url, engine, write_folder, n
     )
     assert retry.returncode == 0, retry.stderr
     assert row_counts(engine, ("solve_run",))["solve_run"] == before["solve_run"] + 1
+
+
+def test_backend_terminated_during_a_resolve_store_leaves_that_week_to_solve(
+    database_url, engine, write_folder, network_files
+) -> None:
+    load_folder(engine, write_folder(network_files))
+
+    done = run_while_terminated(database_url, ["resolve"], "run_flow", "COPY run_flow")
+
+    assert done.returncode != 0
+    assert "Traceback" not in done.stderr + done.stdout
+    with engine.connect() as connection:
+        stored = connection.execute(
+            sa.text("SELECT p.code FROM solve_run r JOIN period p ON p.id = r.period_id ORDER BY p.code")
+        ).scalars().all()
+    # The first week's store was the one ended; the other week went on and was stored.
+    assert stored == ["2026-W41"]
+    dry = subprocess.run(
+        [*PLANNER, "resolve", "--dry-run"], capture_output=True, text=True, timeout=120,
+        env={**os.environ, "PLANNER_DATABASE_URL": database_url},
+    )
+    assert dry.stdout.startswith("2026-W40 would be solved"), dry.stdout
