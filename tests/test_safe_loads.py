@@ -345,3 +345,14 @@ def test_a_long_name_is_refused_at_its_own_limit(write_folder, network_files) ->
     assert "longer than 200 characters" in problem.reason
     fits = network_files["sites.csv"].replace("Alder Works", "A" * 200)
     assert validate_folder(write_folder({**network_files, "sites.csv": fits})).sites["name"][0] == "A" * 200
+
+
+def test_a_repeated_overlong_code_is_reported_once_and_references_to_it_add_nothing(
+    write_folder, network_files
+) -> None:
+    code = "Q" * 3000
+    sites = network_files["sites.csv"] + f"{code},customer,,,,\n{code},customer,,,,\n"
+    demand = network_files["demand.csv"] + f"2026-W40,{code},5,\n"
+    error = refused(write_folder({**network_files, "sites.csv": sites, "demand.csv": demand}))
+    assert [(p.file, p.line, p.column) for p in error.problems] == [("sites.csv", 8, "site"), ("sites.csv", 9, "site")]
+    assert max(len(line) for line in str(error).splitlines()) < 200

@@ -551,17 +551,18 @@ class _Checks:
 
         self.flag(per_row(too_fine), column, reason)
 
-    def text_limits(self) -> None:
-        """Flag cells longer than :data:`planner.contract.TEXT_LIMITS` allows."""
+    def text_limits(self) -> pd.Series:
+        """Flag cells longer than :data:`planner.contract.TEXT_LIMITS` allows; return the
+        mask of rows whose text fits (so that later checks do not quote the long text)."""
+        fits = pd.Series(True, index=self.frame.index)
         for column, limit in TEXT_LIMITS.get(self.name, {}).items():
             codes, uniques = pd.factorize(self.frame[column])
             long = pd.Series(uniques, dtype=object).str.len().to_numpy() > limit
             if long.any():
-                self.flag(
-                    pd.Series(long[codes], index=self.frame.index),
-                    column,
-                    f"longer than {limit} characters, the most a {column} may have",
-                )
+                too_long = pd.Series(long[codes], index=self.frame.index)
+                self.flag(too_long, column, f"longer than {limit} characters, the most a {column} may have")
+                fits &= ~too_long
+        return fits
 
     def period(self) -> pd.Series:
         """Flag bad week codes; return the mask of valid ones."""
@@ -682,11 +683,11 @@ def _validate_sites(
     checks = _Checks(SITES, frame, problems, scaling)
     frame["kind"] = frame["kind"].str.lower()
     has_code = checks.required("site", "site")
-    checks.text_limits()
+    fits = checks.text_limits()
     has_kind = checks.required("kind", "kind")
     valid_kind = frame["kind"].isin(SITE_KINDS)
     checks.flag(has_kind & ~valid_kind, "kind", "unknown kind; use plant, warehouse or customer")
-    checks.duplicates(["site"], has_code, "site", lambda bad: "site " + bad["site"])
+    checks.duplicates(["site"], has_code & fits, "site", lambda bad: "site " + bad["site"])
     canonical = frame[["site", "kind", "name", "region"]].copy()
     for column in ("throughput_capacity", "handling_cost", "holding_cost", "storage_capacity"):
         canonical[column] = checks.number(column, required=False, nonnegative=True)
@@ -742,8 +743,7 @@ def _validate_lanes(
     frame: pd.DataFrame, sites: _SiteIndex | None, problems: list[Problem], scaling: Scaling
 ) -> pd.DataFrame:
     checks = _Checks(LANES, frame, problems, scaling)
-    good_period = checks.period()
-    checks.text_limits()
+    good_period = checks.period() & checks.text_limits()
     good_origin = checks.site(
         "origin", sites, ("plant", "warehouse"), "lane origins must be plants or warehouses"
     )
