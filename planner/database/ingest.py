@@ -185,10 +185,21 @@ class PeriodChange:
         for measure in CHANGE_MEASURES:
             old, new = self.before[measure], self.after[measure]
             if old != new:
-                percent = "new" if old == 0 else f"{(new - old) / old * 100:+.0f} %"
+                percent = "new" if old == 0 else _percent((new - old) / old * 100)
                 flag = "!" if measure in self.warned else ""
                 moves.append(f"{measure} {_number(old)} -> {_number(new)} ({percent}){flag}")
         return f"{self.period}: " + (", ".join(moves) or "same totals, other figures changed")
+
+
+def _percent(change: Decimal) -> str:
+    """A signed percentage, whole above 1 %, with two decimals below (never ``-0 %``).
+
+    Examples
+    --------
+    >>> _percent(Decimal("-72.7")), _percent(Decimal("-0.0089")), _percent(Decimal("13.3"))
+    ('-73 %', '-0.01 %', '+13 %')
+    """
+    return f"{change:+.0f} %" if abs(change) >= 1 else f"{change:+.2f} %"
 
 
 def _number(value: Decimal) -> str:
