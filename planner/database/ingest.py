@@ -14,7 +14,12 @@ are case-insensitive and cells are stripped of surrounding spaces; a blank cell 
 ``min_quantity`` is 0). Periods are ISO week codes such as ``2026-W40``; supply sites
 must be plants, demand sites customers, lane origins plants or warehouses and lane
 destinations warehouses or customers. A batch defines wholly every period that
-appears in supply, demand or lanes.
+appears in supply, demand or lanes; so that a truncated export cannot empty
+periods silently, a file with a header but no rows and a period missing from one
+of those files are refused unless :class:`LoadOptions` allow them. Figures may
+have at most the decimals the solve keeps (``LoadOptions.scaling``), text at most
+:data:`planner.contract.TEXT_LIMITS` characters. A UTF-8 byte-order mark and CRLF
+line ends are dropped before anything is hashed or parsed.
 
 Loading is *validate, then write*. :func:`validate_folder` reads the files with pandas
 and checks them with vectorised column operations, collecting every problem of every
@@ -36,6 +41,7 @@ import datetime
 import hashlib
 import io
 import itertools
+import os
 import re
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
@@ -115,8 +121,6 @@ def change_warning_percent(value: float | None = None) -> float:
     >>> change_warning_percent(20)
     20.0
     """
-    import os
-
     raw = value if value is not None else os.environ.get(CHANGE_WARNING_ENV, DEFAULT_CHANGE_WARNING)
     try:
         percent = float(raw)
