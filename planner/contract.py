@@ -6,7 +6,18 @@ against it, and the generators (:mod:`planner.synthetic`) write exactly it.
 
 from __future__ import annotations
 
-__all__ = ["DEMAND", "FILE_COLUMNS", "FILE_ORDER", "LANES", "REQUIRED_COLUMNS", "SITES", "SUPPLY"]
+__all__ = [
+    "COST_COLUMNS",
+    "DEMAND",
+    "FILE_COLUMNS",
+    "FILE_ORDER",
+    "LANES",
+    "QUANTITY_COLUMNS",
+    "REQUIRED_COLUMNS",
+    "SITES",
+    "SUPPLY",
+    "TEXT_LIMITS",
+]
 
 SITES, SUPPLY, DEMAND, LANES = "sites.csv", "supply.csv", "demand.csv", "lanes.csv"
 #: The files of a load folder, in the order problems are reported.
@@ -37,3 +48,15 @@ REQUIRED_COLUMNS: dict[str, tuple[str, ...]] = {
     DEMAND: ("period", "site", "quantity"),
     LANES: ("period", "origin", "destination", "unit_cost"),
 }
+#: Longest text, in characters, of the free-text columns: codes are keys of
+#: unique indexes (a btree entry holds at most about 2,700 bytes), names and
+#: regions are labels. Site codes in supply, demand and lanes must name a site
+#: of sites.csv, so they are bounded by the same limit.
+TEXT_LIMITS: dict[str, dict[str, int]] = {
+    SITES: {"site": 100, "name": 200, "region": 200},
+    LANES: {"mode": 100},
+}
+#: Columns in quantity units: they keep at most the solve's quantity decimals.
+QUANTITY_COLUMNS = frozenset({"quantity", "capacity", "min_quantity", "throughput_capacity", "storage_capacity"})
+#: Columns in currency per unit: they keep at most the solve's cost decimals.
+COST_COLUMNS = frozenset({"unit_cost", "shortage_penalty", "handling_cost", "holding_cost"})

@@ -12,7 +12,26 @@ from __future__ import annotations
 from collections.abc import Iterable
 from dataclasses import dataclass
 
-__all__ = ["DatabaseUnavailable", "LockTimeout", "NotOptimal", "PlannerError", "Problem", "ValidationError"]
+__all__ = ["SHOWN_VALUE_CHARS", "DatabaseUnavailable", "LockTimeout", "NotOptimal", "PlannerError", "Problem",
+           "ValidationError", "shown_value"]
+
+#: Longest cell text an error line quotes in full; longer values are cut.
+SHOWN_VALUE_CHARS = 60
+
+
+def shown_value(value: str) -> str:
+    """``value`` quoted for an error line, cut to :data:`SHOWN_VALUE_CHARS` characters.
+
+    Examples
+    --------
+    >>> shown_value("P1")
+    "'P1'"
+    >>> shown_value("X" * 3000)[-28:]
+    "XXXXX'... (3,000 characters)"
+    """
+    if len(value) <= SHOWN_VALUE_CHARS:
+        return repr(value)
+    return f"{value[:SHOWN_VALUE_CHARS]!r}... ({len(value):,} characters)"
 
 
 class PlannerError(Exception):
@@ -115,7 +134,7 @@ class Problem:
         if self.column is not None:
             parts.append(f"column {self.column}")
         if self.value is not None:
-            parts.append(f"value {self.value!r}")
+            parts.append(f"value {shown_value(self.value)}")
         parts.append(self.reason)
         return ": ".join(parts)
 

@@ -35,8 +35,8 @@ TOLERANCE = 1e-6
 
 
 
-def load(folder: Path) -> None:
-    result = invoke("load", str(folder))
+def load(folder: Path, *options: str) -> None:
+    result = invoke("load", str(folder), *options)
     assert result.exit_code == 0, result.output
 
 
@@ -348,7 +348,14 @@ def test_figure_with_more_decimals_than_the_precision_is_a_clear_error(
         "2026-W40,W2,C2,road,1,,\n"
     )
     files["demand.csv"] = f"period,site,quantity\n2026-W40,C1,{demand_quantity}\n2026-W40,C2,10\n"
-    result = solve_week(write_folder, files)
+    folder = write_folder(files)
+    # The load checks the figures against the precision first, naming the option.
+    at_load = invoke("load", str(folder))
+    assert at_load.exit_code == 2
+    assert f"{option} " in " ".join(at_load.output.split())
+    # Loaded for a finer precision, a solve at the default one still refuses cleanly.
+    load(folder, option, "6")
+    result = planner("solve", "--period", "2026-W40")
     assert_clean_failure(result)
     assert column in result.stderr
     assert option in result.stderr

@@ -239,7 +239,13 @@ def test_a_unit_cost_beyond_the_cost_precision_is_refused_naming_file_column_and
 
 
 def test_fractional_quantities_solve_with_quantity_decimals_and_are_stored_exactly(engine, write_folder):
-    assert invoke("load", str(write_folder(one_lane_files(demand="2.5")))).exit_code == 0
+    folder = write_folder(one_lane_files(demand="2.5"))
+    at_load = invoke("load", str(folder))
+    assert at_load.exit_code == 2
+    assert "demand.csv:2: column quantity: value '2.5': 1 decimal" in flat(at_load.output)
+    assert "--quantity-decimals 1" in flat(at_load.output)
+    # Loaded for one decimal, a solve at the default precision still refuses the figure.
+    assert invoke("load", str(folder), "--quantity-decimals", "1").exit_code == 0
     refused = invoke("solve", "--period", "2026-W30")
     assert refused.exit_code == 1
     assert "demand.csv column quantity: value 2.5 has more than 0 decimals" in refused.stderr

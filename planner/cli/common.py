@@ -2,9 +2,24 @@
 
 Every command runs inside :class:`PlannerGroup`, which turns the failures a
 person can act on into one or two lines and an exit code of its own, in one
-place, so no command prints a traceback for them:
+place, so no command prints a traceback for them (``--verbose`` or
+``PLANNER_VERBOSE=1`` adds it):
 
-====  ========================================================="""
+====  =========================================================
+code  meaning
+====  =========================================================
+0     success
+1     a run did not end optimal (infeasible, unbounded, failed)
+2     bad input or usage
+3     the database is unavailable or the connection was lost
+      midway (a load or a run's store is one transaction:
+      committed whole or not at all)
+4     another session held a lock the command needed for longer
+      than the lock timeout (``PLANNER_LOCK_TIMEOUT``); what the
+      lock guards was not done
+5     a program the command needs (``psql``) is missing
+====  =========================================================
+"""
 
 from __future__ import annotations
 
@@ -25,6 +40,8 @@ EXIT_OK = 0
 EXIT_NOT_OPTIMAL = 1
 EXIT_USAGE = 2
 EXIT_DATABASE = 3
+#: The same code, named for a connection lost in the middle of a command.
+EXIT_CONNECTION = EXIT_DATABASE
 #: Exit code of a command that gave up waiting for a lock another session held.
 EXIT_LOCKED = 4
 EXIT_MISSING_PROGRAM = 5

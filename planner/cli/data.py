@@ -9,12 +9,15 @@ import typer
 from rich.table import Table
 
 from planner.cli.common import (
+    COST_DECIMALS,
     DATABASE_URL,
+    QUANTITY_DECIMALS,
     app,
     certificate_text,
     console,
     database_target,
     engine,
+    err_console,
     money,
     say,
     shown_url,
@@ -75,16 +78,41 @@ def load(
         ..., exists=True, file_okay=False, metavar="FOLDER",
         help="Folder with sites.csv, supply.csv, demand.csv and lanes.csv.",
     ),
+    allow_empty: bool = typer.Option(False, "--allow-empty", help="Accept a file with a header but no rows."),
+    allow_missing_periods: bool = typer.Option(
+        False, "--allow-missing-periods", help="Accept a period that has rows in some files but not in all of supply, demand and lanes."
+    ),
+    cost_decimals: int = COST_DECIMALS,
+    quantity_decimals: int = QUANTITY_DECIMALS,
+    change_warning: Optional[float] = typer.Option(
+        None, "--change-warning", metavar="PERCENT",
+        help="Warn when a period's total supply, demand, lanes or capacity moves by more than this (default: $PLANNER_CHANGE_WARNING, else 50).",
+    ),
     database_url: Optional[str] = DATABASE_URL,
 ) -> None:
     """Validate and load a folder of CSV files as one load batch.
 
+    Figures must fit the precision the weeks will be solved with (the same
+    --cost-decimals and --quantity-decimals as the solve). The summary says how
+    each period's totals move versus its current snapshot.
+
     Example: planner load seeds/
     """
-    from planner.database.ingest import load_folder
+    from planner.database.ingest import LoadOptions, change_warning_percent, load_folder
+    from planner.database.snapshot import Scaling
 
-    result = load_folder(engine(database_url), folder)
+    options = LoadOptions(
+        allow_empty=allow_empty,
+        allow_missing_periods=allow_missing_periods,
+        scaling=Scaling(cost_decimals, quantity_decimals),
+        change_warning=change_warning_percent(change_warning),
+    )
+    # A connection lost during the load is reported like for every command
+    # (exit 3); the load is one transaction, so nothing of it was written.
+    result = load_folder(engine(database_url), folder, options)
     say(result.message)
+    for warning in result.warnings:
+        err_console.print(f"warning: {warning}", markup=False, highlight=False, soft_wrap=True)
 
 
 @app.command()

@@ -99,7 +99,9 @@ def _solve_weeks(url: str, chosen: list[str], scaling, workers: Optional[int], c
         outcomes = solve_many(
             url, chosen, scaling, workers=workers, on_done=lambda _o: progress.advance(task)
         )
-    _summary_table([o.summary for o in outcomes if o.summary is not None], title=None, code=code)
+    summaries = [o.summary for o in outcomes if o.summary is not None]
+    if summaries:
+        _summary_table(summaries, title=None, code=code)
     for o in outcomes:
         message = o.note if o.summary is None else o.summary.message
         if o.lost is not None:

@@ -48,6 +48,7 @@ __all__ = [
     "EMBEDDED_DATABASE",
     "HOME_ENV",
     "EmbeddedStatus",
+    "database_error_cause",
     "database_url",
     "embedded_server_status",
     "embedded_server_url",
@@ -411,3 +412,39 @@ def raw_copy_connection(connection: sa.Connection) -> psycopg.Connection:
         The driver connection.
     """
     return connection.connection.driver_connection
+
+
+def database_error_cause(error: BaseException) -> str:
+    """The first line of the earliest driver error behind ``error``, for a one-line message.
+
+    A terminated backend raises once in the statement that was running, and
+    again ("the connection is lost") in the rollback that follows; the first
+    one says why. SQLAlchemy's wrapper adds the statement and a link, which a
+    user does not need.
+
+    Examples
+    --------
+    >>> import psycopg
+    >>> first = psycopg.OperationalError("terminating connection due to administrator command\\nmore")
+    >>> try:
+    ...     try:
+    ...         raise first
+    ...     except psycopg.OperationalError:
+    ...         raise psycopg.OperationalError("the connection is lost")
+    ... except psycopg.OperationalError as error:
+    ...     database_error_cause(error)
+    'terminating connection due to administrator command'
+    """
+    import psycopg
+
+    found: BaseException = error
+    seen: set[int] = set()
+    current: BaseException | None = error
+    while current is not None and id(current) not in seen:
+        seen.add(id(current))
+        driver = getattr(current, "orig", None) or current
+        if isinstance(driver, psycopg.Error):
+            found = driver
+        current = current.__cause__ or current.__context__
+    lines = str(found).strip().splitlines()
+    return lines[0] if lines else type(found).__name__

@@ -14,7 +14,12 @@ are case-insensitive and cells are stripped of surrounding spaces; a blank cell 
 ``min_quantity`` is 0). Periods are ISO week codes such as ``2026-W40``; supply sites
 must be plants, demand sites customers, lane origins plants or warehouses and lane
 destinations warehouses or customers. A batch defines wholly every period that
-appears in supply, demand or lanes.
+appears in supply, demand or lanes; so that a truncated export cannot empty
+periods silently, a file with a header but no rows and a period missing from one
+of those files are refused unless :class:`LoadOptions` allow them. Figures may
+have at most the decimals the solve keeps (``LoadOptions.scaling``), text at most
+:data:`planner.contract.TEXT_LIMITS` characters. A UTF-8 byte-order mark and CRLF
+line ends are dropped before anything is hashed or parsed.
 
 Loading is *validate, then write*. :func:`validate_folder` reads the files with pandas
 and checks them with vectorised column operations, collecting every problem of every
@@ -31,10 +36,12 @@ Line numbers in messages are 1-based lines of the file, the header being line 1
 
 from __future__ import annotations
 
+import dataclasses
 import datetime
 import hashlib
 import io
 import itertools
+import os
 import re
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
@@ -47,27 +54,33 @@ import psycopg
 import sqlalchemy as sa
 
 from planner.contract import (
+    COST_COLUMNS,
     DEMAND,
     FILE_COLUMNS,
     FILE_ORDER,
     LANES,
+    QUANTITY_COLUMNS,
     REQUIRED_COLUMNS,
     SITES,
     SUPPLY,
+    TEXT_LIMITS,
 )
 from planner.database.connect import raw_copy_connection
 from planner.database.history import ensure_partitions
 from planner.database.locks import LOAD_LOCK, planner_lock
 from planner.database.migrate import ensure_schema
 from planner.database.models import SITE_KINDS, LoadBatch
-from planner.errors import PlannerError, Problem, ValidationError
+from planner.database.snapshot import Scaling
+from planner.errors import PlannerError, Problem, ValidationError, shown_value
 from planner.periods import parse_week
 
 __all__ = [
     "FILE_COLUMNS",
     "REQUIRED_COLUMNS",
     "FileDigest",
+    "LoadOptions",
     "LoadResult",
+    "PeriodChange",
     "ValidatedFolder",
     "load_folder",
     "validate_folder",
@@ -84,6 +97,117 @@ _EDGE_SPACE_MARKS = (" ,", ", ", " \n", "\n ", " \r", "\t", '" ', ' "')
 _LINE = "_line"
 _FINGERPRINT_VERSION = "planner period fingerprint v1"
 _COPY_CHUNK = 8 * 1024 * 1024
+_UTF8_BOM = b"\xef\xbb\xbf"
+#: Environment variable with the default of :attr:`LoadOptions.change_warning`.
+CHANGE_WARNING_ENV = "PLANNER_CHANGE_WARNING"
+#: Percent change of a period total above which a load warns, unless configured.
+DEFAULT_CHANGE_WARNING = 50.0
+#: Changed periods a load summary lists one per line before counting the rest.
+_SUMMARY_LINES = 10
+# What each file holds, in words, for the messages about empty files and missing periods.
+_CONTENT = {SITES: "sites", SUPPLY: "supply", DEMAND: "demand", LANES: "lanes"}
+
+
+def change_warning_percent(value: float | None = None) -> float:
+    """The change threshold in percent: ``value``, else ``$PLANNER_CHANGE_WARNING``, else 50.
+
+    Raises
+    ------
+    PlannerError
+        If the value is not a number >= 0.
+
+    Examples
+    --------
+    >>> change_warning_percent(20)
+    20.0
+    """
+    raw = value if value is not None else os.environ.get(CHANGE_WARNING_ENV, DEFAULT_CHANGE_WARNING)
+    try:
+        percent = float(raw)
+    except ValueError:
+        percent = -1.0
+    if not percent >= 0:  # also refuses NaN
+        raise PlannerError(
+            f"the change warning threshold {raw!r} (${CHANGE_WARNING_ENV} or --change-warning) "
+            "must be a number of percent >= 0, for example 50"
+        )
+    return percent
+
+
+@dataclass(frozen=True)
+class LoadOptions:
+    """What a load accepts beyond the safe defaults, and when its summary warns.
+
+    Attributes
+    ----------
+    allow_empty : bool
+        Accept a file with a header but no rows (by default refused: a truncated
+        export would replace every period's rows of that file with nothing).
+    allow_missing_periods : bool
+        Accept a period that has rows in some of supply.csv, demand.csv and
+        lanes.csv but none in another (by default refused for the same reason).
+    scaling : Scaling
+        The precision the weeks will be solved with: a figure with more decimals
+        is refused at load, as the solve would refuse it.
+    change_warning : float
+        Percent change of a period's total supply, demand, lane count or lane
+        capacity versus its current snapshot above which the load warns.
+    """
+
+    allow_empty: bool = False
+    allow_missing_periods: bool = False
+    scaling: Scaling = Scaling()
+    change_warning: float = DEFAULT_CHANGE_WARNING
+
+
+#: Period totals compared with the current snapshot, in summary order.
+CHANGE_MEASURES = ("supply", "demand", "lanes", "capacity")
+
+
+@dataclass(frozen=True)
+class PeriodChange:
+    """How a period's totals move from its current snapshot to the new batch.
+
+    Attributes
+    ----------
+    period : str
+    before, after : dict of str to Decimal
+        Per measure of :data:`CHANGE_MEASURES`: total supply, total demand, number
+        of lanes, total capacity of the lanes that have one.
+    warned : tuple of str
+        The measures whose change exceeds the threshold.
+    """
+
+    period: str
+    before: dict[str, Decimal]
+    after: dict[str, Decimal]
+    warned: tuple[str, ...]
+
+    def text(self) -> str:
+        """``2026-W41: demand 75 -> 0 (-100 %)``, only the measures that moved."""
+        moves = []
+        for measure in CHANGE_MEASURES:
+            old, new = self.before[measure], self.after[measure]
+            if old != new:
+                percent = "new" if old == 0 else _percent((new - old) / old * 100)
+                flag = "!" if measure in self.warned else ""
+                moves.append(f"{measure} {_number(old)} -> {_number(new)} ({percent}){flag}")
+        return f"{self.period}: " + (", ".join(moves) or "same totals, other figures changed")
+
+
+def _percent(change: Decimal) -> str:
+    """A signed percentage, whole above 1 %, with two decimals below (never ``-0 %``).
+
+    Examples
+    --------
+    >>> _percent(Decimal("-72.7")), _percent(Decimal("-0.0089")), _percent(Decimal("13.3"))
+    ('-73 %', '-0.01 %', '+13 %')
+    """
+    return f"{change:+.0f} %" if abs(change) >= 1 else f"{change:+.2f} %"
+
+
+def _number(value: Decimal) -> str:
+    return format(value.normalize(), ",f")
 
 
 @dataclass(frozen=True)
@@ -161,6 +285,10 @@ class LoadResult:
         Data rows per file name (``"sites.csv"`` ...).
     periods : list of str
         Week codes the batch defines, in calendar order.
+    changes : list of PeriodChange
+        The periods whose content differs from their current snapshot.
+    warnings : list of str
+        Lines about changes above the threshold (empty when none).
     """
 
     batch_id: int | None
@@ -168,6 +296,8 @@ class LoadResult:
     message: str
     rows: dict[str, int]
     periods: list[str]
+    changes: list[PeriodChange] = dataclasses.field(default_factory=list)
+    warnings: list[str] = dataclasses.field(default_factory=list)
 
 
 # --------------------------------------------------------------------------- reading
@@ -180,8 +310,22 @@ def _read_sources(folder: str | Path) -> tuple[Path, dict[str, bytes | None]]:
     sources = {}
     for name in FILE_ORDER:
         file = path / name
-        sources[name] = file.read_bytes() if file.is_file() else None
+        sources[name] = _normalised(file.read_bytes()) if file.is_file() else None
     return path, sources
+
+
+def _normalised(data: bytes) -> bytes:
+    """The bytes without a UTF-8 byte-order mark and with LF line ends.
+
+    The same content saved by another editor (a BOM, CRLF line ends) hashes the
+    same, so it is recognised as the same content and loads nothing.
+
+    Examples
+    --------
+    >>> _normalised(b"\\xef\\xbb\\xbfsite,kind\\r\\nP1,plant\\r\\n")
+    b'site,kind\\nP1,plant\\n'
+    """
+    return data.removeprefix(_UTF8_BOM).replace(b"\r\n", b"\n")
 
 
 def _content_sha256(digests: dict[str, str]) -> str:
@@ -200,6 +344,8 @@ def _parse(name: str, data: bytes, problems: list[Problem]) -> pd.DataFrame | No
         )
         return None
     columns = FILE_COLUMNS[name]
+    if _other_separator(name, text, problems):
+        return None
     try:
         # header=None keeps the header as row 0, so that the parser measures every row
         # against the header's field count instead of guessing an index column.
@@ -262,6 +408,33 @@ def _parse(name: str, data: bytes, problems: list[Problem]) -> pd.DataFrame | No
     return frame[~blank_row].reset_index(drop=True)
 
 
+def _other_separator(name: str, text: str, problems: list[Problem]) -> bool:
+    """Flag a header line separated by semicolons, tabs or bars instead of commas.
+
+    Examples
+    --------
+    >>> problems = []
+    >>> _other_separator("supply.csv", "period;site;quantity\\n", problems), problems[0].reason[:40]
+    (True, 'the header is separated by semicolons in')
+    >>> _other_separator("sites.csv", "site,kind\\n", problems)
+    False
+    """
+    header = text.split("\n", 1)[0]
+    if "," in header:
+        return False
+    for mark, words in ((";", "semicolons"), ("\t", "tabs"), ("|", "vertical bars")):
+        if mark in header:
+            problems.append(
+                Problem(
+                    name, 1, None, None,
+                    f"the header is separated by {words} instead of commas; save the file as "
+                    "comma-separated CSV (columns separated by ',', a '.' as decimal point)",
+                )
+            )
+            return True
+    return False
+
+
 def _check_header(name: str, header: list[str], problems: list[Problem]) -> bool:
     """Flag header problems; return whether the rows can still be checked."""
     columns = FILE_COLUMNS[name]
@@ -308,10 +481,13 @@ class _Checks:
     so a clean file costs no string building.
     """
 
-    def __init__(self, name: str, frame: pd.DataFrame, problems: list[Problem]) -> None:
+    def __init__(
+        self, name: str, frame: pd.DataFrame, problems: list[Problem], scaling: Scaling = Scaling()
+    ) -> None:
         self.name = name
         self.frame = frame
         self.problems = problems
+        self.scaling = scaling
 
     def flag(
         self, mask: pd.Series, column: str | None, reason: _Reason, *, show_value: bool = True
@@ -356,7 +532,52 @@ class _Checks:
             )
         self.flag(per_row(~blank & ~valid), column, _NOT_A_NUMBER)
         self.flag(per_row(negative), column, f"{column} must be >= 0")
+        self._precision(column, canonical, per_row)
         return per_row(canonical.where(~negative, ""))
+
+    def _precision(self, column: str, canonical: pd.Series, per_row) -> None:
+        """Flag figures with more decimals than the solve keeps for the column's unit."""
+        if column in QUANTITY_COLUMNS:
+            kept, option, unit, most = self.scaling.quantity_decimals, "--quantity-decimals", "quantities", 6
+        elif column in COST_COLUMNS:
+            kept, option, unit, most = self.scaling.cost_decimals, "--cost-decimals", "costs", 12
+        else:
+            return
+        if canonical.empty:
+            return
+        places = canonical.str.partition(".")[2].str.len()
+        too_fine = places > kept
+        if not too_fine.any():
+            return
+        places_of = dict(zip(canonical[too_fine], places[too_fine], strict=True))
+
+        def why(places: int) -> str:
+            advice = (
+                f"load and solve with {option} {places}" if places <= most
+                else f"round it to at most {most} decimals"
+            )
+            return (
+                f"{places} decimal{'s' if places != 1 else ''}, more than the {kept} "
+                f"the solve keeps for {unit}; {advice}"
+            )
+
+        def reason(bad: pd.DataFrame) -> pd.Series:
+            return _canonical_decimal(bad[column]).map(places_of).map(why)
+
+        self.flag(per_row(too_fine), column, reason)
+
+    def text_limits(self) -> pd.Series:
+        """Flag cells longer than :data:`planner.contract.TEXT_LIMITS` allows; return the
+        mask of rows whose text fits (so that later checks do not quote the long text)."""
+        fits = pd.Series(True, index=self.frame.index)
+        for column, limit in TEXT_LIMITS.get(self.name, {}).items():
+            codes, uniques = pd.factorize(self.frame[column])
+            long = pd.Series(uniques, dtype=object).str.len().to_numpy() > limit
+            if long.any():
+                too_long = pd.Series(long[codes], index=self.frame.index)
+                self.flag(too_long, column, f"longer than {limit} characters, the most a {column} may have")
+                fits &= ~too_long
+        return fits
 
     def period(self) -> pd.Series:
         """Flag bad week codes; return the mask of valid ones."""
@@ -367,7 +588,7 @@ class _Checks:
             try:
                 parse_week(code)
             except ValueError as error:
-                reasons[code] = str(error)
+                reasons[code] = str(error).replace(repr(code), shown_value(code))
         invalid = codes.isin(list(reasons))
         self.flag(invalid, "period", lambda bad: bad["period"].map(reasons))
         return present & ~invalid
@@ -472,15 +693,16 @@ def _lane_in_period(rows: pd.DataFrame) -> pd.Series:
 
 
 def _validate_sites(
-    frame: pd.DataFrame, problems: list[Problem]
+    frame: pd.DataFrame, problems: list[Problem], scaling: Scaling
 ) -> tuple[_SiteIndex, pd.DataFrame]:
-    checks = _Checks(SITES, frame, problems)
+    checks = _Checks(SITES, frame, problems, scaling)
     frame["kind"] = frame["kind"].str.lower()
     has_code = checks.required("site", "site")
+    fits = checks.text_limits()
     has_kind = checks.required("kind", "kind")
     valid_kind = frame["kind"].isin(SITE_KINDS)
     checks.flag(has_kind & ~valid_kind, "kind", "unknown kind; use plant, warehouse or customer")
-    checks.duplicates(["site"], has_code, "site", lambda bad: "site " + bad["site"])
+    checks.duplicates(["site"], has_code & fits, "site", lambda bad: "site " + bad["site"])
     canonical = frame[["site", "kind", "name", "region"]].copy()
     for column in ("throughput_capacity", "handling_cost", "holding_cost", "storage_capacity"):
         canonical[column] = checks.number(column, required=False, nonnegative=True)
@@ -493,11 +715,11 @@ def _validate_sites(
 
 def _validate_site_quantities(
     name: str, frame: pd.DataFrame, sites: _SiteIndex | None, problems: list[Problem],
-    kind: str, role: str,
+    kind: str, role: str, scaling: Scaling,
 ) -> tuple[_Checks, pd.DataFrame]:
     """The checks shared by supply.csv and demand.csv: period, site of ``kind``, one row
     per period and site, a non-negative quantity."""
-    checks = _Checks(name, frame, problems)
+    checks = _Checks(name, frame, problems, scaling)
     good_period = checks.period()
     good_site = checks.site("site", sites, (kind,), role)
     checks.duplicates(
@@ -512,19 +734,19 @@ def _validate_site_quantities(
 
 
 def _validate_supply(
-    frame: pd.DataFrame, sites: _SiteIndex | None, problems: list[Problem]
+    frame: pd.DataFrame, sites: _SiteIndex | None, problems: list[Problem], scaling: Scaling
 ) -> pd.DataFrame:
     _, canonical = _validate_site_quantities(
-        SUPPLY, frame, sites, problems, "plant", "supply sites must be plants"
+        SUPPLY, frame, sites, problems, "plant", "supply sites must be plants", scaling
     )
     return canonical
 
 
 def _validate_demand(
-    frame: pd.DataFrame, sites: _SiteIndex | None, problems: list[Problem]
+    frame: pd.DataFrame, sites: _SiteIndex | None, problems: list[Problem], scaling: Scaling
 ) -> pd.DataFrame:
     checks, canonical = _validate_site_quantities(
-        DEMAND, frame, sites, problems, "customer", "demand sites must be customers"
+        DEMAND, frame, sites, problems, "customer", "demand sites must be customers", scaling
     )
     canonical["shortage_penalty"] = checks.number(
         "shortage_penalty", required=False, nonnegative=True
@@ -533,10 +755,10 @@ def _validate_demand(
 
 
 def _validate_lanes(
-    frame: pd.DataFrame, sites: _SiteIndex | None, problems: list[Problem]
+    frame: pd.DataFrame, sites: _SiteIndex | None, problems: list[Problem], scaling: Scaling
 ) -> pd.DataFrame:
-    checks = _Checks(LANES, frame, problems)
-    good_period = checks.period()
+    checks = _Checks(LANES, frame, problems, scaling)
+    good_period = checks.period() & checks.text_limits()
     good_origin = checks.site(
         "origin", sites, ("plant", "warehouse"), "lane origins must be plants or warehouses"
     )
@@ -610,7 +832,60 @@ def _period_fingerprints(
     return {code: hasher.hexdigest() for code, hasher in hashers.items()}
 
 
-def _validate_sources(folder: Path, sources: dict[str, bytes | None]) -> ValidatedFolder:
+def _coverage_problems(
+    frames: dict[str, pd.DataFrame | None], options: LoadOptions, problems: list[Problem]
+) -> dict[str, set[str]]:
+    """Flag files with no rows and periods missing from a file; return each file's periods.
+
+    A file with a header but no rows, or a period with rows in some files but none
+    in another, is what a truncated export looks like: loaded, it would replace that
+    content of every (or of that) period with nothing. Both need an explicit option.
+    """
+    for name in FILE_ORDER:
+        if frames[name] is not None and frames[name].empty and not options.allow_empty:
+            problems.append(
+                Problem(
+                    name, None, None, None,
+                    f"the file has a header but no rows, so every period of this load would have "
+                    f"no {_CONTENT[name]} (a truncated export?); add the rows, or load with "
+                    "--allow-empty if that is meant",
+                )
+            )
+    periods: dict[str, set[str]] = {}
+    for name in (SUPPLY, DEMAND, LANES):
+        if frames[name] is not None:
+            periods[name] = {code for code in pd.unique(frames[name]["period"]) if _is_week(code)}
+    if options.allow_missing_periods:
+        return periods
+    every = set().union(*periods.values())
+    for name, own in periods.items():
+        missing = sorted(every - own)
+        if missing and not frames[name].empty:
+            others = [other for other in periods if other != name and periods[other] & set(missing)]
+            shown = ", ".join(missing[:5]) + (f" and {len(missing) - 5} more" if len(missing) > 5 else "")
+            problems.append(
+                Problem(
+                    name, None, "period", None,
+                    f"no rows for {shown}, which {' and '.join(others)} "
+                    f"{'has' if len(others) == 1 else 'have'}; the load would leave "
+                    f"{'that period' if len(missing) == 1 else 'those periods'} without "
+                    f"{_CONTENT[name]}: add the rows, or load with --allow-missing-periods if that is meant",
+                )
+            )
+    return periods
+
+
+def _is_week(code: str) -> bool:
+    try:
+        parse_week(code)
+    except ValueError:
+        return False
+    return True
+
+
+def _validate_sources(
+    folder: Path, sources: dict[str, bytes | None], options: LoadOptions = LoadOptions()
+) -> ValidatedFolder:
     problems: list[Problem] = []
     frames: dict[str, pd.DataFrame | None] = {}
     for name, data in sources.items():
@@ -622,22 +897,21 @@ def _validate_sources(folder: Path, sources: dict[str, bytes | None]) -> Validat
 
     site_index, canonical_sites = None, None
     if frames[SITES] is not None:
-        site_index, canonical_sites = _validate_sites(frames[SITES], problems)
+        site_index, canonical_sites = _validate_sites(frames[SITES], problems, options.scaling)
     validators = {SUPPLY: _validate_supply, DEMAND: _validate_demand, LANES: _validate_lanes}
     canonical = {
-        name: validate(frames[name], site_index, problems)
+        name: validate(frames[name], site_index, problems, options.scaling)
         for name, validate in validators.items()
         if frames[name] is not None
     }
+    period_sets = _coverage_problems(frames, options, problems)
     if problems:
         order = {name: position for position, name in enumerate(FILE_ORDER)}
         problems.sort(key=lambda problem: (order[problem.file], problem.line or 0))
         raise ValidationError(problems)
 
     assert canonical_sites is not None  # no problems means every file was parsed
-    period_codes = sorted(
-        set().union(*(set(pd.unique(frames[name]["period"])) for name in (SUPPLY, DEMAND, LANES)))
-    )
+    period_codes = sorted(set().union(*period_sets.values()))
     digests = {
         name: hashlib.sha256(data).hexdigest() for name, data in sources.items() if data is not None
     }
@@ -665,20 +939,26 @@ def _validate_sources(folder: Path, sources: dict[str, bytes | None]) -> Validat
     )
 
 
-def validate_folder(folder: str | Path) -> ValidatedFolder:
+def validate_folder(folder: str | Path, options: LoadOptions = LoadOptions()) -> ValidatedFolder:
     """Read and check the four CSV files of a load folder, without a database.
 
     Every problem of every file is collected before failing: missing files and
     header columns, blank required cells, unknown or duplicate sites, sites of the
     wrong kind for their role, lanes from a site to itself, cells that are not plain
     decimal numbers, negative quantities, capacities, penalties and costs (unit_cost
-    may be negative), min_quantity above capacity, duplicate rows, and bad or
-    non-existent ISO week codes.
+    may be negative), min_quantity above capacity, duplicate rows, bad or
+    non-existent ISO week codes, figures with more decimals than the solve keeps
+    (``options.scaling``), text longer than :data:`planner.contract.TEXT_LIMITS`,
+    files separated by semicolons or tabs, and, unless ``options`` allow them,
+    files with a header but no rows and periods missing from one of the files.
 
     Parameters
     ----------
     folder : str or pathlib.Path
         Folder holding sites.csv, supply.csv, demand.csv and lanes.csv.
+    options : LoadOptions, optional
+        Whether empty files and periods missing from a file are accepted, and the
+        precision figures must fit.
 
     Returns
     -------
@@ -714,7 +994,7 @@ def validate_folder(folder: str | Path) -> ValidatedFolder:
     >>> import shutil; shutil.rmtree(folder)
     """
     path, sources = _read_sources(folder)
-    return _validate_sources(path, sources)
+    return _validate_sources(path, sources, options)
 
 
 # --------------------------------------------------------------------------- writing
@@ -810,8 +1090,81 @@ def _copy_frame(
             copy.write(data[start : start + _COPY_CHUNK])
 
 
-def _write_batch(connection: sa.Connection, validated: ValidatedFolder) -> tuple[int, int, int]:
-    """Write one batch in the caller's transaction; return (batch id, new sites, new lanes)."""
+# The current snapshot of each period the load defines (before the load writes its own).
+_CURRENT_SNAPSHOTS = """
+    SELECT DISTINCT ON (p.id) p.code, p.id, ps.batch_id, ps.fingerprint
+    FROM period p JOIN period_snapshot ps ON ps.period_id = p.id
+    WHERE p.code = ANY(%(codes)s) ORDER BY p.id, ps.batch_id DESC"""
+
+# Totals of those snapshots, through the primary keys (batch, period, ...).
+_CURRENT_TOTALS = """
+    SELECT c.code,
+           (SELECT coalesce(sum(quantity), 0) FROM supply x
+             WHERE x.batch_id = c.batch_id AND x.period_id = c.period_id),
+           (SELECT coalesce(sum(quantity), 0) FROM demand x
+             WHERE x.batch_id = c.batch_id AND x.period_id = c.period_id),
+           (SELECT count(*) FROM lane_rate x WHERE x.batch_id = c.batch_id AND x.period_id = c.period_id),
+           (SELECT coalesce(sum(capacity), 0) FROM lane_rate x
+             WHERE x.batch_id = c.batch_id AND x.period_id = c.period_id)
+    FROM unnest(%(codes)s::text[], %(period_ids)s::int[], %(batches)s::bigint[])
+         AS c (code, period_id, batch_id)"""
+
+# Totals of the new rows of those periods: one scan of each staging table.
+_STAGED_TOTALS = {
+    "supply": "SELECT period, sum(quantity) FROM stage_supply WHERE period = ANY(%(codes)s) GROUP BY period",
+    "demand": "SELECT period, sum(quantity) FROM stage_demand WHERE period = ANY(%(codes)s) GROUP BY period",
+    "lanes": "SELECT period, count(*), coalesce(sum(capacity), 0) FROM stage_lane "
+    "WHERE period = ANY(%(codes)s) GROUP BY period",
+}
+
+
+def _compare_with_current(
+    cursor: psycopg.Cursor, validated: ValidatedFolder, threshold: float
+) -> tuple[list[PeriodChange], int]:
+    """The periods whose content changes, with their totals before and after, and how
+    many periods are new. Periods whose fingerprint is unchanged cost nothing."""
+    current = cursor.execute(_CURRENT_SNAPSHOTS, {"codes": validated.periods}).fetchall()
+    changed = [row for row in current if row[3] != validated.fingerprints[row[0]]]
+    new_periods = len(validated.periods) - len(current)
+    if not changed:
+        return [], new_periods
+    codes = [row[0] for row in changed]
+    zero = Decimal(0)
+    after = {code: dict.fromkeys(CHANGE_MEASURES, zero) for code in codes}
+    for measure, query in _STAGED_TOTALS.items():
+        for code, *totals in cursor.execute(query, {"codes": codes}):
+            if measure == "lanes":
+                after[code]["lanes"], after[code]["capacity"] = Decimal(totals[0]), totals[1]
+            else:
+                after[code][measure] = totals[0]
+    rows = cursor.execute(
+        _CURRENT_TOTALS,
+        {"codes": codes, "period_ids": [row[1] for row in changed], "batches": [row[2] for row in changed]},
+    ).fetchall()
+    changes = []
+    for code, *totals in rows:
+        before = dict(zip(CHANGE_MEASURES, (Decimal(total) for total in totals), strict=True))
+        warned = tuple(
+            measure for measure in CHANGE_MEASURES
+            if _beyond(before[measure], after[code][measure], threshold)
+        )
+        changes.append(PeriodChange(code, before, after[code], warned))
+    changes.sort(key=lambda change: validated.period_starts[change.period])
+    return changes, new_periods
+
+
+def _beyond(old: Decimal, new: Decimal, threshold: float) -> bool:
+    """Whether ``old -> new`` moves by more than ``threshold`` percent (any move from 0 does)."""
+    if old == 0:
+        return new != 0
+    return abs(new - old) * 100 > abs(old) * Decimal(str(threshold))
+
+
+def _write_batch(
+    connection: sa.Connection, validated: ValidatedFolder, threshold: float
+) -> tuple[int, int, int, list[PeriodChange], int]:
+    """Write one batch in the caller's transaction; return (batch id, new sites, new lanes,
+    changed periods, count of new periods)."""
     files = {
         name: {"sha256": digest.sha256, "rows": digest.rows}
         for name, digest in validated.files.items()
@@ -833,6 +1186,7 @@ def _write_batch(connection: sa.Connection, validated: ValidatedFolder) -> tuple
         _copy_frame(cursor, "stage_lane", validated.lanes, keep_blank=["mode"])
         for table in _STAGING:
             cursor.execute(f"ANALYZE {table}")
+        changes, new_periods = _compare_with_current(cursor, validated, threshold)
         codes = validated.periods
         parameters = {
             "batch": batch_id,
@@ -849,7 +1203,7 @@ def _write_batch(connection: sa.Connection, validated: ValidatedFolder) -> tuple
         cursor.execute("ANALYZE stage_lane_ids")
         new_lanes = cursor.execute(_INSERT_LANES, parameters).rowcount
         cursor.execute(_INSERT_LANE_RATES, parameters)
-    return batch_id, new_sites, new_lanes
+    return batch_id, new_sites, new_lanes, changes, new_periods
 
 
 def _latest_batch(connection: sa.Connection) -> sa.Row | None:
@@ -892,7 +1246,33 @@ def _span(periods: list[str]) -> str:
     return f"{len(periods)} periods {periods[0]}..{periods[-1]}"
 
 
-def load_folder(engine: sa.Engine, folder: str | Path) -> LoadResult:
+def _change_summary(
+    changes: list[PeriodChange], new_periods: int, unchanged: int, threshold: float
+) -> tuple[list[str], list[str]]:
+    """Summary lines (one per changed period, at most a screenful) and warning lines."""
+    counts = [f"{new_periods} new", f"{len(changes)} changed", f"{unchanged} unchanged"]
+    lines = [f"periods versus their current snapshots: {', '.join(counts)}"]
+    if changes:
+        lines[0] += f" (! marks a change above {threshold:g} %)"
+    # Periods with a warning first, so that a long summary never hides them.
+    ordered = sorted(changes, key=lambda change: not change.warned)
+    lines += [f"  {change.text()}" for change in ordered[:_SUMMARY_LINES]]
+    if len(changes) > _SUMMARY_LINES:
+        lines.append(f"  ... and {len(changes) - _SUMMARY_LINES} more changed periods")
+    warned = [change for change in changes if change.warned]
+    warnings = []
+    if warned:
+        names = ", ".join(change.period for change in warned[:_SUMMARY_LINES])
+        more = f" and {len(warned) - _SUMMARY_LINES} more" if len(warned) > _SUMMARY_LINES else ""
+        warnings.append(
+            f"{len(warned)} period{'s' if len(warned) != 1 else ''} changed by more than "
+            f"{threshold:g} % versus the current snapshot ({names}{more}); check the files "
+            "(the previous snapshots are kept)"
+        )
+    return lines, warnings
+
+
+def load_folder(engine: sa.Engine, folder: str | Path, options: LoadOptions = LoadOptions()) -> LoadResult:
     """Validate a load folder and write it as one new load batch, in one transaction.
 
     The schema is migrated first if needed. If the folder's files are byte for byte
@@ -906,11 +1286,17 @@ def load_folder(engine: sa.Engine, folder: str | Path) -> LoadResult:
         Target database (see :func:`planner.database.connect.get_engine`).
     folder : str or pathlib.Path
         Folder holding sites.csv, supply.csv, demand.csv and lanes.csv.
+    options : LoadOptions, optional
+        What the load accepts beyond the safe defaults, and its change threshold.
 
     Returns
     -------
     LoadResult
-        ``created=False`` when the folder is identical to the latest batch.
+        ``created=False`` when the folder is identical to the latest batch (a
+        byte-order mark or CRLF line ends make no difference). The message says,
+        per period, how total supply, demand, lanes and lane capacity move versus
+        the current snapshot; ``warnings`` name the periods that move by more than
+        ``options.change_warning`` percent.
 
     Raises
     ------
@@ -932,7 +1318,7 @@ def load_folder(engine: sa.Engine, folder: str | Path) -> LoadResult:
             latest = _latest_batch(connection)
             if latest is not None and latest.content_sha256 == content:
                 return _unchanged(connection, path, latest)
-    validated = _validate_sources(path, sources)
+    validated = _validate_sources(path, sources, options)
     # Loads are serialised, so that "identical to the latest batch" stays true until commit.
     with (
         planner_lock(engine, LOAD_LOCK, what="loading", advice="let that load finish and load again"),
@@ -942,7 +1328,9 @@ def load_folder(engine: sa.Engine, folder: str | Path) -> LoadResult:
         if latest is not None and latest.content_sha256 == validated.content_sha256:
             return _unchanged(connection, path, latest)
         try:
-            batch_id, new_sites, new_lanes = _write_batch(connection, validated)
+            batch_id, new_sites, new_lanes, changes, new_periods = _write_batch(
+                connection, validated, options.change_warning
+            )
         except (
             sa.exc.IntegrityError,
             sa.exc.DataError,
@@ -961,15 +1349,31 @@ def load_folder(engine: sa.Engine, folder: str | Path) -> LoadResult:
     with engine.begin() as connection:
         connection.execute(sa.text("ANALYZE period, site, site_version, period_snapshot, supply, demand, lane, lane_rate"))
         ensure_partitions(connection, validated.periods)
+    return _created(validated, batch_id, new_sites, new_lanes, changes, new_periods, options)
+
+
+def _created(
+    validated: ValidatedFolder, batch_id: int, new_sites: int, new_lanes: int,
+    changes: list[PeriodChange], new_periods: int, options: LoadOptions,
+) -> LoadResult:
+    """The result of a load that wrote a new batch, with its summary lines."""
+    path = validated.folder
     rows = {name: digest.rows for name, digest in validated.files.items()}
     counts = ", ".join(f"{name} {count:,}" for name, count in rows.items())
+    unchanged = len(validated.periods) - new_periods - len(changes)
+    summary, warnings = _change_summary(changes, new_periods, unchanged, options.change_warning)
     return LoadResult(
         batch_id=batch_id,
         created=True,
-        message=(
-            f"loaded batch {batch_id} from {path}: {_span(validated.periods)}; rows: {counts}; "
-            f"{new_sites:,} new sites, {new_lanes:,} new lanes"
+        message="\n".join(
+            [
+                f"loaded batch {batch_id} from {path}: {_span(validated.periods)}; rows: {counts}; "
+                f"{new_sites:,} new sites, {new_lanes:,} new lanes",
+                *summary,
+            ]
         ),
         rows=rows,
         periods=validated.periods,
+        changes=changes,
+        warnings=warnings,
     )

@@ -23,10 +23,12 @@ from contextlib import contextmanager
 from dataclasses import dataclass, field
 from typing import Callable, Iterable, Iterator
 
+import psycopg
 from sqlalchemy import Connection, Engine, text
 from sqlalchemy.exc import InterfaceError, OperationalError, SQLAlchemyError
 
 from planner import __version__
+from planner.database.connect import database_error_cause
 from planner.database.locks import lock_timeout, planner_lock, week_lock_name
 from planner.database.snapshot import Scaling, current_batch, run_fingerprint
 from planner.errors import DatabaseUnavailable, LockTimeout, PlannerError
@@ -161,10 +163,18 @@ def _guarded(call: Callable[[], RunSummary], period: str) -> WeekOutcome:
     # worker that died) is reported, and the other weeks go on.
     try:
         return WeekOutcome(period, call())
-    except (PlannerError, SQLAlchemyError, BrokenProcessPool) as err:
+    except (PlannerError, BrokenProcessPool) as err:
         note = str(err) if isinstance(err, PlannerError) else f"{type(err).__name__}: {err}"
-        lost = err if isinstance(err, (DatabaseUnavailable, OperationalError, InterfaceError)) else None
+        lost = err if isinstance(err, DatabaseUnavailable) else None
         return WeekOutcome(period, None, note, locked=isinstance(err, LockTimeout), lost=lost)
+    except (SQLAlchemyError, psycopg.Error) as err:
+        # One line: the driver's own first line, not SQLAlchemy's statement dump and link.
+        cause = database_error_cause(err)
+        connection = (OperationalError, InterfaceError, psycopg.OperationalError, psycopg.InterfaceError)
+        lost = err if isinstance(err, connection) else None
+        what = "the database connection failed" if lost is not None else "the database refused the run"
+        note = f"{what} ({cause}); nothing was stored for this week, it is still to be solved"
+        return WeekOutcome(period, None, note, lost=lost)
 
 
 def is_stale(conn: Connection, period: str, scaling: Scaling) -> tuple[bool, str]:
