@@ -374,3 +374,38 @@ def test_solve_all_waits_for_a_week_that_resolve_holds(engine: sa.Engine, write_
     assert not worker.is_alive()
     assert [o.ok for o in result["out"]] == [True]
     assert [r.period for r in week_runs(engine)] == ["2026-W40"]
+
+
+def test_weeks_chained_warm_cost_what_ortools_gives_cold_and_certify(engine: sa.Engine, database_url: str,
+                                                                     tmp_path) -> None:
+    # Reference: OR-Tools' min-cost-flow solver, solving each week cold
+    # (solve_many(..., warm=False)); the warm chain must reach the same optimal
+    # cost on every week, each proved by its own certificate.
+    from planner.database.connect import get_engine
+    from planner.runs.schedule import solve_many
+
+    frames = benchmark_network(n_plants=6, n_warehouses=20, n_customers=800, n_lanes=6_000, weeks=5, seed=11)
+    load(write_network(frames, tmp_path / "five-weeks"))
+    weeks = sorted(set(frames.supply["period"]))
+    url = engine.url.render_as_string(hide_password=False)
+    warm = solve_many(url, weeks, workers=1, warm=True)
+    cold = solve_many(url, weeks, workers=1, warm=False)
+    assert [o.summary.status for o in warm] == ["optimal"] * 5
+    assert [o.summary.cost for o in warm] == [o.summary.cost for o in cold]
+    assert all(o.summary.certificate_ok for o in warm + cold)
+    assert {o.summary.engine for o in cold} == {"ortools"}
+    # The first week has nothing to start from (or a state of another layout);
+    # the later weeks of one network start warm from the week before.
+    assert [o.summary.engine for o in warm[1:]] == ["warm"] * 4
+    get_engine(url).dispose()
+    # Both chains stored the same price ranges for every site of every week: the
+    # ends are the cost of one unit less or more, whichever optimal flow was found.
+    with engine.connect() as conn:
+        prices = conn.execute(sa.text(
+            "SELECT r.period, r.site_id, r.price_low, r.price_high FROM run_site_price r"
+        )).all()
+    by_key: dict = {}
+    for period, site_id, low, high in prices:
+        by_key.setdefault((period, site_id), set()).add((low, high))
+    assert len(by_key) == len(prices) // 2
+    assert all(len(ends) == 1 for ends in by_key.values())

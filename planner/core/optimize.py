@@ -54,6 +54,9 @@ class Outcome:
     solver_seconds: float = 0.0
     dual_seconds: float = 0.0
     timings: dict = field(default_factory=dict)
+    #: Which engine produced the flow: ``ortools`` (cold), ``warm``, or
+    #: ``ortools after warm`` (a warm answer that did not prove itself).
+    engine: str = "ortools"
 
     @property
     def ok(self) -> bool:

@@ -92,18 +92,18 @@ def week_lock(
         yield held
 
 
-def solve_locked(engine: Engine, period: str, scaling: Scaling) -> RunSummary:
+def solve_locked(engine: Engine, period: str, scaling: Scaling, *, chain: bool = False) -> RunSummary:
     """:func:`~planner.runs.solve_period` under the week's lock (waiting at most the lock timeout)."""
     with week_lock(engine, period):
-        return solve_period(engine, period, scaling)
+        return solve_period(engine, period, scaling, chain=chain)
 
 
-def _solve_in_worker(url: str, period: str, scaling: Scaling) -> RunSummary:
+def _solve_in_worker(url: str, period: str, scaling: Scaling, chain: bool) -> RunSummary:
     from planner.database.connect import get_engine
 
     engine = get_engine(url)
     try:
-        return solve_locked(engine, period, scaling)
+        return solve_locked(engine, period, scaling, chain=chain)
     finally:
         engine.dispose()
 
@@ -115,8 +115,14 @@ def solve_many(
     *,
     workers: int | None = None,
     on_done: Callable[[WeekOutcome], None] | None = None,
+    warm: bool = True,
 ) -> list[WeekOutcome]:
     """Solve independent weeks in parallel worker processes.
+
+    Weeks are handed out in calendar order, and with ``warm`` each worker
+    starts each week from the optimum of the week it solved before (a chain:
+    consecutive weeks of one network differ by drift); a warm answer is kept
+    only when its certificate holds, else the week is solved cold.
 
     Parameters
     ----------
@@ -128,6 +134,8 @@ def solve_many(
         Worker processes (default: the number of CPU cores, at most the weeks).
     on_done : callable, optional
         Called in the parent with each week's outcome as it finishes (progress).
+    warm : bool
+        Chain the weeks of each worker warm (default); False solves each cold.
 
     Returns
     -------
@@ -142,14 +150,14 @@ def solve_many(
         engine = get_engine(url)
         try:
             for period in periods:
-                outcomes[period] = _guarded(lambda: solve_locked(engine, period, scaling), period)
+                outcomes[period] = _guarded(lambda: solve_locked(engine, period, scaling, chain=warm), period)
                 if on_done:
                     on_done(outcomes[period])
         finally:
             engine.dispose()
         return [outcomes[p] for p in periods]
     with ProcessPoolExecutor(max_workers=workers) as pool:
-        futures = {pool.submit(_solve_in_worker, url, p, scaling): p for p in periods}
+        futures = {pool.submit(_solve_in_worker, url, p, scaling, warm): p for p in sorted(periods)}
         for future in as_completed(futures):
             period = futures[future]
             outcomes[period] = _guarded(future.result, period)

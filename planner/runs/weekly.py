@@ -8,6 +8,7 @@ its status and message; it never leaves half a run behind.
 
 from __future__ import annotations
 
+import dataclasses
 import time
 from dataclasses import dataclass
 from decimal import Decimal
@@ -15,8 +16,11 @@ from decimal import Decimal
 import numpy as np
 from sqlalchemy import Engine, text
 
+from planner.core.engines import WarmState, same_layout, solve_with, state_of
 from planner.core.network import assemble_instance
-from planner.core.optimize import FAILED, Outcome, optimize, shortage_units
+from planner.core.optimize import FAILED, OPTIMAL, Outcome, analyse_flow, optimize, shortage_units
+from planner.core.paths import PathError
+from planner.core.residual import DualError
 from planner.database.history import ensure_partitions
 from planner.database.results import RunKey, insert_run, store_results, to_decimal
 from planner.database.snapshot import (
@@ -41,6 +45,8 @@ class RunSummary:
     certificate_ok: bool | None
     message: str
     seconds: dict
+    #: The engine that produced the flow (``ortools``, ``warm``, ``ortools after warm``).
+    engine: str = "ortools"
 
     @property
     def ok(self) -> bool:
@@ -70,11 +76,28 @@ class _LaneLabels:
         return self._labels[lane]
 
 
-def solve_snapshot(snapshot: Snapshot, scaling: Scaling) -> tuple:
-    """Build and optimise one snapshot (no database): ``(instance, outcome)``."""
+def solve_snapshot(snapshot: Snapshot, scaling: Scaling, state: WarmState | None = None) -> tuple:
+    """Build and optimise one snapshot (no database): ``(instance, outcome)``.
+
+    With ``state`` (an optimum of a similar week of the same arc layout), the
+    warm engine solves first (:func:`planner.core.engines.solve_with`); its
+    flow counts only when its certificate holds, and the prices, ranges and
+    limit values are derived from it exactly as from a cold solve. A week the
+    warm engine cannot solve optimally is solved cold, with the diagnosis of a
+    bad week. ``outcome.engine`` says which engine produced the flow.
+    """
     inst = assemble_instance(
         snapshot.week, cost_scale=scaling.cost_scale, quantity_scale=scaling.quantity_scale
     )
+    if state is not None and same_layout(inst, state):
+        solution, engine_name = solve_with(inst, state)
+        if solution.status == OPTIMAL:
+            try:
+                outcome = analyse_flow(inst, solution.flow, solver_seconds=solution.solver_seconds)
+            except (DualError, PathError):
+                outcome = None
+            if outcome is not None and outcome.ok:
+                return inst, dataclasses.replace(outcome, engine=engine_name)
     outcome = optimize(
         inst,
         site_codes=snapshot.site_code,
@@ -84,7 +107,13 @@ def solve_snapshot(snapshot: Snapshot, scaling: Scaling) -> tuple:
     return inst, outcome
 
 
-def solve_period(engine: Engine, period: str, scaling: Scaling = Scaling()) -> RunSummary:
+#: Per process, the warm state of the latest week it solved optimally, for
+#: chains of weeks (:func:`solve_period` with ``chain=True``): consecutive weeks
+#: of one network differ by drift, so each starts warm from the one before.
+_chain: dict[tuple[int, int], WarmState] = {}
+
+
+def solve_period(engine: Engine, period: str, scaling: Scaling = Scaling(), *, chain: bool = False) -> RunSummary:
     """Solve the current snapshot of ``period`` and store the run.
 
     Parameters
@@ -94,6 +123,9 @@ def solve_period(engine: Engine, period: str, scaling: Scaling = Scaling()) -> R
         ISO week, for example ``"2026-W49"``.
     scaling : Scaling
         Decimal places kept for unit costs and quantities.
+    chain : bool
+        Start warm from the week this process solved last (``solve --all``);
+        the certificate decides as for every run.
 
     Returns
     -------
@@ -127,10 +159,15 @@ def solve_period(engine: Engine, period: str, scaling: Scaling = Scaling()) -> R
             engine, key, scaling, None, failure, start, label=period,
             periods=None, site_ids=None, lane_ids=None, site_kind=None,
         )
+    precision = (scaling.cost_decimals, scaling.quantity_decimals)
+    state = _chain.get(precision) if chain else None
     try:
-        inst, outcome = solve_snapshot(snapshot, scaling)
+        inst, outcome = solve_snapshot(snapshot, scaling, state)
     except PlannerError as err:
         inst, outcome = None, Outcome(FAILED, str(err))
+    if chain and outcome.ok:
+        # The week's prices prove its flow optimal: the next week starts from both.
+        _chain[precision] = state_of(inst, outcome.flow, outcome.ranges.price)
     return store_and_summarise(
         engine, key, scaling, inst, outcome, start,
         label=period,
@@ -185,6 +222,7 @@ def store_and_summarise(
             "store": t_store - t_solve,
             "total": t_store - start,
         },
+        engine=outcome.engine,
     )
 
 
