@@ -5,6 +5,7 @@
 :mod:`.data`            ``init``, ``load``, ``periods``
 :mod:`.solving`         ``solve``, ``resolve``, ``certificate``
 :mod:`.analysis`        ``prices``, ``report``, ``explain``
+:mod:`.scenarios`       ``scenario create|solve|list``, ``compare``
 :mod:`.demo`            ``demo``
 =====================  ==============================================
 
@@ -20,6 +21,7 @@ from planner.cli.common import app
 from planner.cli import data  # noqa: F401  (registers init, load, periods)
 from planner.cli import solving  # noqa: F401  (registers solve, resolve, certificate)
 from planner.cli import analysis  # noqa: F401  (registers prices, report, explain)
+from planner.cli import scenarios  # noqa: F401  (registers scenario, compare)
 from planner.cli import demo  # noqa: F401  (registers demo)
 # isort: on
 

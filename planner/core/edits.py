@@ -92,6 +92,8 @@ class Edit:
     line: int = 1
     target_column: str = "target"
     value_column: str = "value"
+    #: Line of the value where it differs from ``line`` (a TOML table's keys).
+    value_line: int | None = None
 
     def text(self) -> str:
         """The edit as one command-line word list, for example ``rate from W01 +8%``."""
@@ -209,7 +211,8 @@ class _Editing:
         return WeekData(**self.fields)
 
     def _problem(self, edit: Edit, column: str, value: str, reason: str) -> None:
-        self.problems.append(Problem(edit.source, edit.line, column, value, reason))
+        line = edit.value_line if column == edit.value_column and edit.value_line else edit.line
+        self.problems.append(Problem(edit.source, line, column, value, reason))
 
     def apply(self, edit: Edit) -> None:
         if edit.action not in ACTIONS:

@@ -45,7 +45,7 @@ def reopen_week(conn: Connection, period: str, run_id: int | None = None) -> Sto
         "SELECT run_id FROM latest_week_run WHERE period = :period"
         if run_id is None
         else "SELECT r.id FROM solve_run r JOIN period p ON p.id = r.period_id WHERE r.id = :run "
-        "AND p.code = :period AND r.kind = 'week' AND r.status = 'optimal'"
+        "AND p.code = :period AND r.kind = 'week' AND r.status = 'optimal' AND r.scenario_id IS NULL"
     )
     row = conn.execute(
         text(

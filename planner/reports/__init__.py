@@ -4,6 +4,7 @@
 :mod:`.queries`         the reporting views as pandas frames; the weekly report
 :mod:`.explain`         the marginal route of a stored run's price
 :mod:`.rates`           rate ranges of a stored run's lanes, with their routes
+:mod:`.compare`         what moved between two week runs (cost, prices, flows, binding limits)
 :mod:`.charts`          PNG charts (matplotlib Agg)
 :mod:`.html`            the self-contained weekly HTML report
 :mod:`.sections`        the weekly report's sections and columns, for every output

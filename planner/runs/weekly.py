@@ -15,6 +15,7 @@ from decimal import Decimal
 import numpy as np
 from sqlalchemy import Engine, text
 
+from planner.core.engines import COLD
 from planner.core.network import assemble_instance
 from planner.core.optimize import FAILED, Outcome, optimize, shortage_units
 from planner.database.history import ensure_partitions
@@ -144,20 +145,28 @@ def solve_period(engine: Engine, period: str, scaling: Scaling = Scaling()) -> R
 def store_and_summarise(
     engine: Engine, key: RunKey, scaling: Scaling, inst, outcome: Outcome, start: float, *,
     label: str, periods, site_ids, lane_ids, site_kind, lane_present=None,
+    engine_name: str | None = COLD, also_store=None,
 ) -> RunSummary:
-    """Store a run (row, flows, prices, stock) in one transaction and summarise it."""
+    """Store a run (row, flows, prices, stock) in one transaction and summarise it.
+
+    ``engine_name`` is recorded as the run's engine; ``also_store(conn, run_id)``,
+    when given, writes more rows of the run in the same transaction.
+    """
     t_solve = time.perf_counter()
     if outcome.ok:
         with engine.begin() as conn:
             ensure_partitions(conn, periods)
     with engine.begin() as conn:
-        run_id = insert_run(conn, key, scaling, inst, outcome, t_solve - start)
+        run_id = insert_run(conn, key, scaling, inst, outcome, t_solve - start,
+                            engine=engine_name if inst is not None else None)
         if outcome.ok:
             store_results(
                 conn, run_id, inst, outcome, scaling,
                 periods=periods, site_ids=site_ids, lane_ids=lane_ids,
                 site_kind=site_kind, lane_present=lane_present,
             )
+        if also_store is not None:
+            also_store(conn, run_id)
         t_store = time.perf_counter()
         conn.execute(
             text("UPDATE solve_run SET total_seconds = :s WHERE id = :id"),

@@ -1,0 +1,183 @@
+"""What-if commands: ``scenario create``, ``scenario solve``, ``scenario list``, and ``compare``.
+
+A scenario is a base week plus edits (``--edit "close W03"``, or a CSV/TOML
+file of them); solving it stores a run of its own that the week views and
+``resolve`` never see. ``compare`` shows what moved between any two week
+runs, or between a scenario and its base week.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+from typing import Optional
+
+import typer
+from rich.table import Table
+
+from planner.cli.analysis import OutputFormat, number, units
+from planner.cli.common import COST_DECIMALS, DATABASE_URL, QUANTITY_DECIMALS, app, console, engine, fail, money, say
+from planner.errors import PlannerError
+
+scenario_app = typer.Typer(help="What-if scenarios: a base week plus edits, solved without touching it.",
+                           no_args_is_help=True)
+app.add_typer(scenario_app, name="scenario")
+
+
+@scenario_app.command("create")
+def create(
+    name: str = typer.Argument(..., help="A name of your choice, unique."),
+    base: str = typer.Option(..., "--base", "-b", help="The base week (ISO week, for example 2026-W40)."),
+    edit: Optional[list[str]] = typer.Option(None, "--edit", "-e", help='An edit, for example "close W03" or '
+                                             '"rate from P01 +8%" (repeatable).'),
+    edits_file: Optional[Path] = typer.Option(None, "--edits-file", help="A CSV (action,target,value) or TOML file of edits."),
+    description: Optional[str] = typer.Option(None, "--description", "-d", help="Why the scenario exists."),
+    cost_decimals: int = COST_DECIMALS,
+    quantity_decimals: int = QUANTITY_DECIMALS,
+    solve: bool = typer.Option(False, "--solve", help="Solve it right away."),
+    database_url: Optional[str] = DATABASE_URL,
+) -> None:
+    """Store a named what-if on a base week; its edits are checked first, the week is never changed.
+
+    Example: planner scenario create no-w03 --base 2026-W40 --edit "close W03" --edit "rate mode rail -5%"
+    """
+    from planner.database.snapshot import Scaling
+    from planner.runs.scenarios import command_line_edits, create_scenario, read_edit_file
+
+    try:
+        edits = (read_edit_file(edits_file) if edits_file else []) + command_line_edits(edit or [])
+        db = engine(database_url)
+        create_scenario(db, name, base, edits, description=description,
+                        scaling=Scaling(cost_decimals, quantity_decimals))
+    except PlannerError as err:
+        fail(err)
+    say(f"scenario {name} on {base}: {len(edits)} edits stored")
+    if solve:
+        _solve_and_print(db, [name])
+
+
+@scenario_app.command("solve")
+def solve(
+    names: list[str] = typer.Argument(..., help="Scenario names."),
+    cold: bool = typer.Option(False, "--cold", help="Solve from scratch (OR-Tools), not from the base run."),
+    database_url: Optional[str] = DATABASE_URL,
+) -> None:
+    """Solve scenarios on their base week's current snapshot; each stores a pinned run of its own.
+
+    Example: planner scenario solve no-w03 rail-cheaper
+    """
+    try:
+        db = engine(database_url)
+    except PlannerError as err:
+        fail(err)
+    _solve_and_print(db, names, warm=not cold)
+
+
+def _solve_and_print(db, names: list[str], warm: bool = True) -> None:
+    from planner.runs.scenarios import solve_scenario
+    from planner.runs.weekly import certificate_word
+
+    table = Table("scenario", "run", "status", "cost", "engine", "certificate", "seconds", title="Scenario runs")
+    failed = False
+    for name in names:
+        try:
+            done = solve_scenario(db, name, warm=warm)
+        except PlannerError as err:
+            fail(err)
+        s = done.summary
+        failed |= not s.ok
+        table.add_row(name, str(s.run_id), s.status, money(s.cost), done.engine or "-",
+                      certificate_word(s.certificate_ok), f"{s.seconds['total']:.2f}")
+        if done.note:
+            say(f"note: {done.note}")
+        if not s.ok:
+            say(f"{name}: {s.message}")
+    console.print(table)
+    if failed:
+        raise typer.Exit(1)
+
+
+@scenario_app.command("list")
+def list_command(database_url: Optional[str] = DATABASE_URL) -> None:
+    """Every scenario, its base week, edits and latest run.
+
+    Example: planner scenario list
+    """
+    from planner.runs.scenarios import list_scenarios
+
+    try:
+        rows = list_scenarios(engine(database_url))
+    except PlannerError as err:
+        fail(err)
+    table = Table("scenario", "base", "edits", "latest run", "status", "cost", "engine", "made by", "description")
+    for r in rows:
+        table.add_row(r["name"], r["base"], str(r["edits"]), str(r["run_id"] or "-"), r["status"] or "-",
+                      money(r["cost"]), r["engine"] or "-", r["created_by"], r["description"] or "")
+    console.print(table)
+
+
+@app.command()
+def compare(
+    runs: Optional[list[int]] = typer.Argument(None, help="Two run ids: the reference, then the one compared."),
+    scenario: Optional[str] = typer.Option(None, "--scenario", "-s", help="Compare a scenario's latest run with its base week's."),
+    section: Optional[str] = typer.Option(None, "--section", help="Only cost, prices, flows or binding."),
+    rows: int = typer.Option(15, "--rows", help="Rows per table (table format only)."),
+    output_format: OutputFormat = typer.Option(OutputFormat.table, "--format", help="table, csv or json."),
+    database_url: Optional[str] = DATABASE_URL,
+) -> None:
+    """What moved between two week runs: cost by echelon and mode, site prices, lane flows, binding limits.
+
+    Example: planner compare 41 57      planner compare --scenario no-w03 --format csv --section prices
+    """
+    from planner.reports.compare import SECTIONS, compare_runs
+    from planner.reports.formats import records
+    from planner.runs.scenarios import scenario_runs
+
+    try:
+        if section is not None and section not in SECTIONS:
+            raise PlannerError(f"unknown section {section!r}; use one of {', '.join(SECTIONS)}")
+        if (scenario is None) == (len(runs or []) != 2):
+            raise PlannerError("give two run ids, or --scenario NAME")
+        db = engine(database_url)
+        a, b = scenario_runs(db, scenario) if scenario else runs
+        result = compare_runs(db, a, b)
+    except PlannerError as err:
+        fail(err)
+    chosen = [section] if section else list(SECTIONS)
+    if output_format == OutputFormat.json:
+        out = {name: records(result.section(name)) for name in chosen}
+        print(json.dumps(out if section is None else out[section], indent=2))
+    elif output_format == OutputFormat.csv:
+        for name in chosen:
+            frame = result.section(name)
+            print(frame.assign(section=name).to_csv(index=False) if section is None else frame.to_csv(index=False),
+                  end="")
+    else:
+        say(result.headline())
+        for name in chosen:
+            console.print(comparison_table(result, name, rows))
+
+
+def comparison_table(result, name: str, rows: int) -> Table:
+    """One section of a comparison as a rich table (the first ``rows`` rows)."""
+    frame = result.section(name).head(rows)
+    if name == "cost":
+        table = Table("echelon", "mode", "cost a", "cost b", "difference", title="Lane cost by echelon and mode")
+        for r in frame.itertuples():
+            table.add_row(r.echelon or "", r.mode or "", money(r.cost_a), money(r.cost_b), money(r.difference))
+    elif name == "prices":
+        table = Table("site", "kind", "price a", "range a", "price b", "range b", "moved", "determined",
+                      title="Site prices, largest moves first")
+        for r in frame.itertuples():
+            table.add_row(r.site, r.kind or "", number(r.price_a), f"{number(r.low_a)} .. {number(r.high_a)}",
+                          number(r.price_b), f"{number(r.low_b)} .. {number(r.high_b)}", number(r.difference),
+                          "yes" if r.determined else "no (ranges overlap)")
+    elif name == "flows":
+        table = Table("lane", "flow a", "flow b", "change", title="Lanes whose flow changed")
+        for r in frame.itertuples():
+            table.add_row(r.lane, units(r.flow_a), units(r.flow_b), units(r.difference))
+    else:
+        table = Table("limit", "what", "value a", "value b", "change", title="Limits that became or stopped binding")
+        for r in frame.itertuples():
+            table.add_row(r.limit_kind, r.label, number(r.value_a), number(r.value_b), r.change)
+    return table
