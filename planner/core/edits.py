@@ -16,8 +16,10 @@ percentage change such as ``+8%`` or ``-12.5%``; ``none`` removes a limit):
 ``close SITE``                  every lane into or out of SITE carries nothing
                                 (capacity 0, minimum 0); a customer's demand
                                 becomes 0
-``open SITE``                   every lane of SITE with capacity 0 becomes
-                                unlimited (undoes a closure)
+``open SITE``                   every lane of SITE with capacity 0 gets the
+                                base week's capacity and minimum back
+                                (unlimited where the base had 0); a closed
+                                customer its demand (undoes a closure)
 ``demand CUSTOMER|all VALUE``   a customer's demand, or every customer's
 ``supply PLANT|all VALUE``      a plant's supply, or every plant's
 ``rate LANES VALUE``            unit cost of the lanes
@@ -196,6 +198,7 @@ class _Editing:
     """The arrays being edited (copies), and the problems found so far."""
 
     def __init__(self, week: WeekData, names: WeekNames, cost_decimals: int, quantity_decimals: int) -> None:
+        self.base = week
         self.fields = {f.name: None if getattr(week, f.name) is None else np.array(getattr(week, f.name))
                        for f in dataclasses.fields(week)}
         for name in ("holding_cost", "storage_capacity"):
@@ -250,7 +253,14 @@ class _Editing:
             if f["site_kind"][site] == SiteKind.CUSTOMER:
                 f["demand"][site] = 0
         else:
-            f["lane_capacity"][touches & (f["lane_capacity"] == 0)] = NONE
+            # Figures closed to 0 get the base week's back (unlimited where the base had them at 0).
+            shut = np.flatnonzero(touches & (f["lane_capacity"] == 0))
+            shut = shut[shut < self.base.n_lanes]
+            base_capacity = self.base.lane_capacity[shut]
+            f["lane_capacity"][shut] = np.where(base_capacity == 0, NONE, base_capacity)
+            f["lane_min"][shut] = np.where(base_capacity == 0, 0, self.base.lane_min[shut])
+            if f["site_kind"][site] == SiteKind.CUSTOMER and f["demand"][site] == 0:
+                f["demand"][site] = self.base.demand[site]
 
     def _site(self, edit: Edit, code: str, kind: SiteKind | None) -> int | None:
         found = np.flatnonzero(self.site_code == code)
@@ -368,7 +378,7 @@ class _Editing:
         checks = [
             ("lane_capacity", f["lane_capacity"] < NONE, "a capacity below 0"),
             ("lane_min", f["lane_min"] < 0, "a minimum below 0"),
-            ("lane_min", (f["lane_capacity"] != NONE) & (f["lane_min"] > f["lane_capacity"]),
+            ("lane_min", (f["lane_capacity"] >= 0) & (f["lane_min"] > f["lane_capacity"]),
              "a minimum above the lane's capacity"),
             ("demand", f["demand"] < 0, "a demand below 0"),
             ("supply", f["supply"] < 0, "a supply below 0"),
