@@ -125,8 +125,9 @@ def parse_edit(words: str, *, source: str = "--edit", line: int = 1) -> Edit:
 
     Examples
     --------
-    >>> parse_edit("rate W01->C02 road +8%")
-    Edit(action='rate', target='W01->C02 road', value='+8%', source='--edit', line=1, target_column='target', value_column='value')
+    >>> e = parse_edit("rate W01->C02 road +8%")
+    >>> e.action, e.target, e.value
+    ('rate', 'W01->C02 road', '+8%')
     >>> parse_edit("close W03").text()
     'close W03'
     >>> parse_edit("shut W03")
