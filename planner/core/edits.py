@@ -187,8 +187,6 @@ def apply_edits(
     state = _Editing(week, names, cost_decimals, quantity_decimals)
     for edit in edits:
         state.apply(edit)
-    if state.problems:
-        raise ValidationError(state.problems)
     state.check_solvable()
     if state.problems:
         raise ValidationError(state.problems)

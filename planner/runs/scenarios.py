@@ -209,11 +209,12 @@ def _lane_ids_of_added(conn: Connection, snap, names: WeekNames, week) -> np.nda
         return snap.lane_id
     rows = [{"o": int(snap.site_id[week.lane_origin[k]]), "d": int(snap.site_id[week.lane_destination[k]]),
              "m": str(names.lane_mode[k])} for k in range(n_base, week.n_lanes)]
-    with conn.begin():
-        conn.execute(text("INSERT INTO lane (origin_id, destination_id, mode) VALUES (:o, :d, :m) "
-                          "ON CONFLICT DO NOTHING"), rows)
-        added = [conn.execute(text("SELECT id FROM lane WHERE origin_id = :o AND destination_id = :d AND mode = :m"),
-                              r).scalar_one() for r in rows]
+    # Registering a lane pair changes no snapshot: a week's lanes are its lane_rate rows.
+    conn.execute(text("INSERT INTO lane (origin_id, destination_id, mode) VALUES (:o, :d, :m) "
+                      "ON CONFLICT DO NOTHING"), rows)
+    added = [conn.execute(text("SELECT id FROM lane WHERE origin_id = :o AND destination_id = :d AND mode = :m"),
+                          r).scalar_one() for r in rows]
+    conn.commit()
     return np.concatenate([snap.lane_id, np.array(added, np.int64)])
 
 
