@@ -26,7 +26,7 @@ def demo(
     folder: Optional[Path] = typer.Option(None, "--folder", help="Where to write the demo CSVs (default: $PLANNER_HOME/demo)."),
     database_url: Optional[str] = DATABASE_URL,
 ) -> None:
-    """Build a fictional network, load it, solve every week and show what moved.
+    """Build a fictional network, load it, solve every week, show what moved and what a warehouse closure would do.
 
     Example: planner demo
     """
@@ -55,8 +55,26 @@ def demo(
         + "\nthen for example: SELECT * FROM site_price_history WHERE site = "
         f"'{report.movers[0]['site'] if report.movers else 'C0001'}' ORDER BY period;"
     )
+    if report.scenario is not None:
+        _print_scenario(db_engine, report)
     if any(not s.ok for s in report.runs):
         raise typer.Exit(1)
+
+
+def _print_scenario(db_engine, report) -> None:
+    """The closure scenario's comparison with its base week, as one short table."""
+    from planner.cli.scenarios import comparison_table
+    from planner.reports.compare import compare_runs
+
+    done = report.scenario
+    say(f"\nscenario {done.scenario!r}: {done.summary.status}, engine {done.engine or '-'}")
+    if report.compared is None:
+        say(done.summary.message)
+        return
+    result = compare_runs(db_engine, *report.compared)
+    say(result.headline())
+    console.print(comparison_table(result, "prices", 5))
+    say(f"more: planner compare --scenario '{done.scenario}'   (or --format csv, --section flows)")
 
 
 def _psql_target(url: str) -> str:
