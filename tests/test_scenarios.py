@@ -212,3 +212,24 @@ def test_solving_after_the_base_week_was_reloaded_says_so(engine: sa.Engine, wri
         batches = list(conn.execute(sa.text("SELECT batch_id FROM solve_run WHERE scenario_id IS NOT NULL ORDER BY id"))
                        .scalars())
     assert batches[0] != batches[1]
+
+
+def test_sweep_passes_through_the_stored_plan_at_the_lane_s_own_rate(
+    engine: sa.Engine, write_folder, network_files
+) -> None:
+    loaded_and_solved(write_folder, network_files)
+    out = invoke("sweep", "-p", "2026-W40", "--lane", "P1->W1 road", "--from", "0", "--to", "9", "--format", "json")
+    assert out.exit_code == 0, out.output
+    pieces = json.loads(out.output)
+    with engine.connect() as conn:
+        stored = conn.execute(sa.text(
+            "SELECT lf.flow, lf.unit_cost, r.primal_cost FROM lane_flow lf JOIN solve_run r ON r.id = lf.run_id "
+            "WHERE lf.period = '2026-W40' AND lf.label = 'P1->W1 road'")).one()
+    piece = next(p for p in pieces if p["rate_from"] <= stored.unit_cost <= p["rate_to"])
+    # on the piece holding the lane's own rate, the cost line passes through the stored optimum,
+    # with the stored flow as its slope (parametric cost analysis; common practice, no source)
+    assert Decimal(str(piece["flow"])) == stored.flow
+    at_own_rate = Decimal(str(piece["cost_from"])) + (stored.unit_cost - Decimal(str(piece["rate_from"]))) * stored.flow
+    assert at_own_rate == stored.primal_cost
+    assert [p["rate_to"] for p in pieces[:-1]] == [p["rate_from"] for p in pieces[1:]]
+    assert pieces[0]["rate_from"] == 0 and pieces[-1]["rate_to"] == 9

@@ -181,3 +181,42 @@ def comparison_table(result, name: str, rows: int) -> Table:
         for r in frame.itertuples():
             table.add_row(r.limit_kind, r.label, number(r.value_a), number(r.value_b), r.change)
     return table
+
+
+@app.command()
+def sweep(
+    lane: str = typer.Option(..., "--lane", help="The lane whose rate varies, as ORIGIN->DESTINATION MODE."),
+    rate_from: str = typer.Option(..., "--from", help="Lowest rate."),
+    rate_to: str = typer.Option(..., "--to", help="Highest rate."),
+    period: Optional[str] = typer.Option(None, "--period", "-p", help="The week (its current snapshot)."),
+    scenario: Optional[str] = typer.Option(None, "--scenario", "-s", help="A scenario instead of a week."),
+    output_format: OutputFormat = typer.Option(OutputFormat.table, "--format", help="table, csv or json."),
+    database_url: Optional[str] = DATABASE_URL,
+) -> None:
+    """The optimal cost as one lane's rate varies: exact breakpoints, with the lane's flow (the slope) on each piece.
+
+    Example: planner sweep -p 2026-W52 --lane "P02->W03 road" --from 3 --to 8
+    """
+    from planner.runs.scenarios import sweep_rate
+
+    try:
+        pieces = sweep_rate(engine(database_url), lane, rate_from, rate_to, period=period, scenario=scenario)
+    except PlannerError as err:
+        fail(err)
+    rows = [{"rate_from": p.rate_from, "rate_to": p.rate_to, "flow": p.flow, "cost_from": p.cost_from,
+             "cost_to": p.cost_to} for p in pieces]
+    if output_format == OutputFormat.json:
+        from planner.reports.formats import json_value
+
+        print(json.dumps([{k: json_value(v) for k, v in r.items()} for r in rows], indent=2))
+    elif output_format == OutputFormat.csv:
+        import pandas as pd
+
+        print(pd.DataFrame(rows, columns=list(rows[0])).to_csv(index=False), end="")
+    else:
+        table = Table("rate from", "rate to", "flow on the lane (slope)", "cost from", "cost to",
+                      title=f"Optimal cost as the rate of {lane} varies", caption="breakpoints are exact")
+        for r in rows:
+            table.add_row(number(r["rate_from"], 4), number(r["rate_to"], 4), units(r["flow"]),
+                          money(r["cost_from"]), money(r["cost_to"]))
+        console.print(table)

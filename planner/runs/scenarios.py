@@ -22,6 +22,7 @@ import hashlib
 import io
 import time
 from dataclasses import dataclass
+from decimal import Decimal, InvalidOperation
 from pathlib import Path
 
 import numpy as np
@@ -38,12 +39,13 @@ from planner.core.residual import DualError
 from planner.core.solve import OPTIMAL
 from planner.core.week import NONE
 from planner.database.reopen import reopen_week
-from planner.database.results import NULL, RunKey, copy_text_rows, decimal_text
+from planner.database.results import NULL, RunKey, copy_text_rows, decimal_text, to_decimal
 from planner.database.snapshot import Scaling, current_batch, read_snapshot, run_fingerprint
 from planner.errors import PlannerError, Problem, ValidationError
 from planner.runs.weekly import RunSummary, store_and_summarise
 
-__all__ = ["ScenarioRun", "create_scenario", "list_scenarios", "read_edit_file", "scenario_runs", "solve_scenario"]
+__all__ = ["ScenarioRun", "SweepPiece", "create_scenario", "list_scenarios", "read_edit_file", "scenario_runs",
+           "solve_scenario", "sweep_rate"]
 
 _COLUMNS = ("action", "target", "value")
 
@@ -357,3 +359,69 @@ def scenario_runs(engine: Engine, name: str) -> tuple[int, int]:
     if base is None:
         raise PlannerError(f"the base week {sc['period']} has no optimal run; solve it with `planner solve`")
     return int(base), int(run)
+
+
+@dataclass(frozen=True)
+class SweepPiece:
+    """One piece of a sweep in currency and units: the same plan is optimal from ``rate_from`` to ``rate_to``."""
+
+    rate_from: Decimal
+    rate_to: Decimal
+    flow: Decimal
+    cost_from: Decimal
+    cost_to: Decimal
+    engine: str
+
+
+def sweep_rate(
+    engine: Engine, lane: str, rate_from: str, rate_to: str, *, period: str | None = None,
+    scenario: str | None = None, scaling: Scaling = Scaling(),
+) -> list[SweepPiece]:
+    """Exact pieces of the optimal cost of a week (or a scenario) as one lane's rate goes from one figure to another.
+
+    Parameters
+    ----------
+    lane : str
+        ``O->D`` or ``O->D MODE``.
+    rate_from, rate_to : str
+        Decimal figures at the precision of the week (or of the scenario).
+    period, scenario : str
+        The week, or a scenario (its base week with its edits applied).
+
+    Raises
+    ------
+    PlannerError
+        For an unknown lane or week, figures beyond the precision, or a week without a plan at some rate.
+    """
+    from planner.core.sweep import rate_sweep
+
+    if (period is None) == (scenario is None):
+        raise PlannerError("give --period P or --scenario NAME")
+    with engine.connect() as conn:
+        edits: list[Edit] = []
+        if scenario is not None:
+            sc, edits = _scenario(conn, scenario)
+            period, scaling = sc["period"], Scaling(sc["cost_decimals"], sc["quantity_decimals"])
+        snap = read_snapshot(conn, period, scaling)
+    week, names = apply_edits(snap.week, WeekNames(snap.site_code, snap.lane_mode), edits,
+                              cost_decimals=scaling.cost_decimals, quantity_decimals=scaling.quantity_decimals)
+    found = np.flatnonzero(names.lane_keys(week) == " ".join(lane.split()))
+    if found.shape[0] != 1:
+        raise PlannerError(f"no lane {lane!r} in {period}; name it as ORIGIN->DESTINATION MODE")
+    low, high = (_scaled_rate(v, scaling) for v in (rate_from, rate_to))
+    pieces = rate_sweep(week, int(found[0]), low, high, cost_scale=scaling.cost_scale,
+                        quantity_scale=scaling.quantity_scale)
+    cd, qd = scaling.cost_decimals, scaling.quantity_decimals
+    return [SweepPiece(to_decimal(p.start, cd), to_decimal(p.end, cd), to_decimal(p.flow, qd),
+                       to_decimal(p.cost_at_start, cd + qd), to_decimal(p.cost_at(p.end), cd + qd), p.engine)
+            for p in pieces]
+
+
+def _scaled_rate(value: str, scaling: Scaling) -> int:
+    try:
+        scaled = Decimal(value).scaleb(scaling.cost_decimals)
+    except InvalidOperation:
+        raise PlannerError(f"rate {value!r} is not a number") from None
+    if scaled != scaled.to_integral_value():
+        raise PlannerError(f"rate {value!r} has more than {scaling.cost_decimals} decimals")
+    return int(scaled)
