@@ -52,6 +52,7 @@ def test_a_scenario_leaves_the_snapshot_resolve_and_the_week_views_as_they_were(
     before = dump(engine, SNAPSHOT_TABLES + WEEK_VIEWS)
     dry_before = invoke("resolve", "--dry-run").output
     periods_before = invoke("periods").output
+    certificate_before = invoke("certificate", "--period", "2026-W40").output
 
     create("what-if", *EDITS)
     solved = invoke("scenario", "solve", "what-if")
@@ -60,6 +61,7 @@ def test_a_scenario_leaves_the_snapshot_resolve_and_the_week_views_as_they_were(
     assert dump(engine, SNAPSHOT_TABLES + WEEK_VIEWS) == before
     assert invoke("resolve", "--dry-run").output == dry_before
     assert invoke("periods").output == periods_before
+    assert invoke("certificate", "--period", "2026-W40").output == certificate_before
     with engine.connect() as conn:
         run = conn.execute(sa.text(
             "SELECT r.*, s.name, EXISTS (SELECT FROM run_pin p WHERE p.run_id = r.id) AS pinned "

@@ -276,7 +276,8 @@ def run_certificate(engine: Engine, *, period: str | None = None, run_id: int | 
                 "SELECT r.*, p.code AS period_code FROM solve_run r "
                 "LEFT JOIN period p ON p.id = r.period_id "
                 "WHERE (CAST(:run AS bigint) IS NULL OR r.id = :run) "
-                "AND (CAST(:period AS text) IS NULL OR p.code = :period) "
+                # a week's certificate is its plan's: scenario runs answer by id only
+                "AND (CAST(:period AS text) IS NULL OR (p.code = :period AND r.scenario_id IS NULL)) "
                 "ORDER BY r.finished_at DESC, r.id DESC LIMIT 1"
             ),
             {"run": run_id, "period": period},
