@@ -71,28 +71,34 @@ LANGUAGE sql STABLE SECURITY DEFINER SET search_path FROM CURRENT AS $$
 $$"""
 
 # Cost of the lanes by echelon (origin kind -> destination kind) and mode.
-COMPARE_COST = """
+# The lane figures of each run are read once (a function call per flow row would read them per row).
+_RUN_LANE_COST = """
+    SELECT {tag} AS side, ov.kind || '->' || dv.kind AS echelon, l.mode, sum(f.flow * lr.unit_cost) AS cost
+    FROM run_flow f
+    JOIN {rates} lr ON lr.lane_id = f.lane_id
+    JOIN lane l ON l.id = f.lane_id
+    LEFT JOIN site_version ov ON ov.batch_id = (SELECT batch_id FROM solve_run WHERE id = {run})
+         AND ov.site_id = l.origin_id
+    LEFT JOIN site_version dv ON dv.batch_id = (SELECT batch_id FROM solve_run WHERE id = {run})
+         AND dv.site_id = l.destination_id
+    WHERE f.run_id = {run}
+      AND f.period = (SELECT p.code FROM solve_run sr JOIN period p ON p.id = sr.period_id WHERE sr.id = {run})
+    GROUP BY 1, 2, 3"""
+
+# Cost of the lanes by echelon (origin kind -> destination kind) and mode.
+COMPARE_COST = f"""
 CREATE FUNCTION compare_cost(a bigint, b bigint)
 RETURNS TABLE (echelon text, mode text, cost_a numeric, cost_b numeric, difference numeric)
 LANGUAGE sql STABLE SECURITY DEFINER SET search_path FROM CURRENT AS $$
-    WITH runs AS (
-        SELECT sr.id, sr.batch_id, p.code FROM solve_run sr JOIN period p ON p.id = sr.period_id
-        WHERE sr.id IN (a, b)
-    ),
-    lane_cost AS (
-        SELECT r.id AS run_id, ov.kind || '->' || dv.kind AS echelon, l.mode, sum(f.flow * lr.unit_cost) AS cost
-        FROM runs r
-        JOIN run_flow f ON f.run_id = r.id AND f.period = r.code
-        JOIN run_lane_rate(r.id) lr ON lr.lane_id = f.lane_id
-        JOIN lane l ON l.id = f.lane_id
-        LEFT JOIN site_version ov ON ov.batch_id = r.batch_id AND ov.site_id = l.origin_id
-        LEFT JOIN site_version dv ON dv.batch_id = r.batch_id AND dv.site_id = l.destination_id
-        GROUP BY 1, 2, 3
+    WITH rates_a AS MATERIALIZED (SELECT * FROM run_lane_rate(a)),
+    rates_b AS MATERIALIZED (SELECT * FROM run_lane_rate(b)),
+    lane_cost AS ({_RUN_LANE_COST.format(tag="'a'", rates="rates_a", run="a")}
+    UNION ALL{_RUN_LANE_COST.format(tag="'b'", rates="rates_b", run="b")}
     )
     SELECT coalesce(x.echelon, y.echelon), coalesce(x.mode, y.mode),
            coalesce(x.cost, 0), coalesce(y.cost, 0), coalesce(y.cost, 0) - coalesce(x.cost, 0)
-    FROM (SELECT * FROM lane_cost WHERE run_id = a) x
-    FULL JOIN (SELECT * FROM lane_cost WHERE run_id = b) y ON x.echelon = y.echelon AND x.mode = y.mode
+    FROM (SELECT * FROM lane_cost WHERE side = 'a') x
+    FULL JOIN (SELECT * FROM lane_cost WHERE side = 'b') y ON x.echelon = y.echelon AND x.mode = y.mode
     ORDER BY 1, 2
 $$"""
 
@@ -104,11 +110,11 @@ RETURNS TABLE (site text, kind text, price_a numeric, low_a numeric, high_a nume
                price_b numeric, low_b numeric, high_b numeric, difference numeric, determined boolean)
 LANGUAGE sql STABLE SECURITY DEFINER SET search_path FROM CURRENT AS $$
     WITH x AS (
-        SELECT r.* FROM run_site_price r JOIN solve_run sr ON sr.id = r.run_id
-        JOIN period p ON p.id = sr.period_id WHERE r.run_id = a AND r.period = p.code
+        SELECT r.* FROM run_site_price r
+        WHERE r.run_id = a AND r.period = (SELECT p.code FROM solve_run sr JOIN period p ON p.id = sr.period_id WHERE sr.id = a)
     ), y AS (
-        SELECT r.* FROM run_site_price r JOIN solve_run sr ON sr.id = r.run_id
-        JOIN period p ON p.id = sr.period_id WHERE r.run_id = b AND r.period = p.code
+        SELECT r.* FROM run_site_price r
+        WHERE r.run_id = b AND r.period = (SELECT p.code FROM solve_run sr JOIN period p ON p.id = sr.period_id WHERE sr.id = b)
     )
     SELECT s.code, sv.kind, x.price, x.price_low, x.price_high, y.price, y.price_low, y.price_high,
            y.price - x.price,
@@ -128,11 +134,11 @@ RETURNS TABLE (lane text, origin text, destination text, mode text, flow_a numer
                difference numeric)
 LANGUAGE sql STABLE SECURITY DEFINER SET search_path FROM CURRENT AS $$
     WITH x AS (
-        SELECT f.lane_id, f.flow FROM run_flow f JOIN solve_run sr ON sr.id = f.run_id
-        JOIN period p ON p.id = sr.period_id WHERE f.run_id = a AND f.period = p.code
+        SELECT f.lane_id, f.flow FROM run_flow f
+        WHERE f.run_id = a AND f.period = (SELECT p.code FROM solve_run sr JOIN period p ON p.id = sr.period_id WHERE sr.id = a)
     ), y AS (
-        SELECT f.lane_id, f.flow FROM run_flow f JOIN solve_run sr ON sr.id = f.run_id
-        JOIN period p ON p.id = sr.period_id WHERE f.run_id = b AND f.period = p.code
+        SELECT f.lane_id, f.flow FROM run_flow f
+        WHERE f.run_id = b AND f.period = (SELECT p.code FROM solve_run sr JOIN period p ON p.id = sr.period_id WHERE sr.id = b)
     )
     SELECT {LANE_LABEL}, o.code, d.code, l.mode, coalesce(x.flow, 0), coalesce(y.flow, 0),
            coalesce(y.flow, 0) - coalesce(x.flow, 0)
@@ -150,11 +156,11 @@ CREATE FUNCTION compare_binding(a bigint, b bigint)
 RETURNS TABLE (limit_kind text, label text, value_a numeric, value_b numeric, change text)
 LANGUAGE sql STABLE SECURITY DEFINER SET search_path FROM CURRENT AS $$
     WITH x AS (
-        SELECT lim.limit_kind, lim.ref_id, lim.loosen_value FROM run_limit lim JOIN solve_run sr ON sr.id = lim.run_id
-        JOIN period p ON p.id = sr.period_id WHERE lim.run_id = a AND lim.period = p.code AND lim.loosen_value > 0
+        SELECT lim.limit_kind, lim.ref_id, lim.loosen_value FROM run_limit lim
+        WHERE lim.run_id = a AND lim.period = (SELECT p.code FROM solve_run sr JOIN period p ON p.id = sr.period_id WHERE sr.id = a) AND lim.loosen_value > 0
     ), y AS (
-        SELECT lim.limit_kind, lim.ref_id, lim.loosen_value FROM run_limit lim JOIN solve_run sr ON sr.id = lim.run_id
-        JOIN period p ON p.id = sr.period_id WHERE lim.run_id = b AND lim.period = p.code AND lim.loosen_value > 0
+        SELECT lim.limit_kind, lim.ref_id, lim.loosen_value FROM run_limit lim
+        WHERE lim.run_id = b AND lim.period = (SELECT p.code FROM solve_run sr JOIN period p ON p.id = sr.period_id WHERE sr.id = b) AND lim.loosen_value > 0
     ), moved AS (
         SELECT coalesce(x.limit_kind, y.limit_kind) AS limit_kind, coalesce(x.ref_id, y.ref_id) AS ref_id,
                x.loosen_value AS value_a, y.loosen_value AS value_b

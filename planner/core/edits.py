@@ -208,6 +208,13 @@ class _Editing:
         self.decimals = {"cost": cost_decimals, "quantity": quantity_decimals}
         self.problems: list[Problem] = []
         self.last_edit: dict[str, Edit] = {}
+        self._keys: np.ndarray | None = None
+
+    def lane_keys(self) -> np.ndarray:
+        """Every lane's ``O->D MODE`` as str, built once (added lanes are appended)."""
+        if self._keys is None:
+            self._keys = WeekNames(self.site_code, self.lane_mode).lane_keys(self.week()).astype(str)
+        return self._keys
 
     def week(self) -> WeekData:
         return WeekData(**self.fields)
@@ -303,12 +310,12 @@ class _Editing:
             self._problem(edit, edit.target_column, edit.target,
                           "a lane target is O->D, O->D MODE, from SITE, to SITE, mode MODE or all")
             return None
-        keys = WeekNames(self.site_code, self.lane_mode).lane_keys(self.week())
+        keys = self.lane_keys()
         key = " ".join(words)
         mask = keys == key
         if len(words) == 1 and not mask.any():
             # O->D without a mode names the pair's lanes of every mode.
-            mask = np.char.startswith(keys.astype(str), key + " ")
+            mask = np.char.startswith(keys, key + " ")
         return mask
 
     def _scaled(self, edit: Edit, text: str, quantity: bool, column: str) -> int | None:
@@ -359,7 +366,7 @@ class _Editing:
         if origin is None or destination is None or rate is None:
             return
         mode = words[1] if len(words) == 2 else ""
-        keys = WeekNames(self.site_code, self.lane_mode).lane_keys(self.week())
+        keys = self.lane_keys()
         if origin == destination or (keys == " ".join(words)).any():
             self._problem(edit, edit.target_column, edit.target,
                           "the base week already has this lane (change it with rate/capacity)"
@@ -370,6 +377,7 @@ class _Editing:
                             ("lane_capacity", NONE), ("lane_min", 0)):
             f[name] = np.append(f[name], np.int64(value))
         self.lane_mode = np.append(self.lane_mode, np.array([mode], dtype=object))
+        self._keys = np.append(keys, " ".join(words))
 
     def check_solvable(self) -> None:
         """Refuse figures no plan can meet as written: negative limits or needs, minimums above capacity."""

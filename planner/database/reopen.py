@@ -33,8 +33,11 @@ class StoredWeek:
     flow: np.ndarray
 
 
-def reopen_week(conn: Connection, period: str, run_id: int | None = None) -> StoredWeek:
+def reopen_week(conn: Connection, period: str, run_id: int | None = None, snapshot: Snapshot | None = None) -> StoredWeek:
     """The latest optimal run of ``period`` (or run ``run_id``) read back as arrays.
+
+    ``snapshot``, when given, must have been read at the run's precision; when it
+    is of the run's batch it is used instead of reading the snapshot again.
 
     Raises
     ------
@@ -61,7 +64,8 @@ def reopen_week(conn: Connection, period: str, run_id: int | None = None) -> Sto
         )
     run, batch, cd, qd = (int(v) for v in row)
     scaling = Scaling(cd, qd)
-    snap = read_snapshot(conn, period, scaling, batch_id=batch)
+    same = snapshot is not None and snapshot.batch_id == batch
+    snap = snapshot if same else read_snapshot(conn, period, scaling, batch_id=batch)
     # The week's code reaches the result tables' partition key: one partition read.
     params = {"q": scaling.quantity_scale, "r": run, "p": period}
     lanes = fetch_columns(

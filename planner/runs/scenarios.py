@@ -260,7 +260,7 @@ def solve_scenario(engine: Engine, name: str, *, warm: bool = True) -> ScenarioR
         names = WeekNames(snap.site_code, snap.lane_mode)
         week, names = apply_edits(snap.week, names, edits, cost_decimals=scaling.cost_decimals,
                                   quantity_decimals=scaling.quantity_decimals)
-        base = _base_run(conn, period, batch_id, scaling) if warm else None
+        base = _base_run(conn, snap, scaling) if warm else None
         lane_ids = _lane_ids_of_added(conn, snap, names, week)
     inst = assemble_instance(week, cost_scale=scaling.cost_scale, quantity_scale=scaling.quantity_scale)
     state = state_of(base.instance, base.flow) if base is not None else None
@@ -296,14 +296,15 @@ def _base_note(conn: Connection, sc, batch_id: int) -> str:
     return ""
 
 
-def _base_run(conn: Connection, period: str, batch_id: int, scaling: Scaling):
-    """The base week's latest optimal run, when it was solved on this snapshot at this precision."""
+def _base_run(conn: Connection, snap, scaling: Scaling):
+    """The base week's latest optimal run, when it was solved on this snapshot (``snap``) at this precision."""
+    period, batch_id = snap.period, snap.batch_id
     row = conn.execute(
         text("SELECT r.id FROM latest_week_run lw JOIN solve_run r ON r.id = lw.run_id WHERE lw.period = :p "
              "AND r.batch_id = :b AND r.cost_decimals = :cd AND r.quantity_decimals = :qd"),
         {"p": period, "b": batch_id, "cd": scaling.cost_decimals, "qd": scaling.quantity_decimals},
     ).first()
-    return None if row is None else reopen_week(conn, period, int(row[0]))
+    return None if row is None else reopen_week(conn, period, int(row[0]), snapshot=snap)
 
 
 def _store_lane_edits(conn: Connection, run_id: int, base, week, lane_ids: np.ndarray, scaling: Scaling) -> None:
