@@ -235,3 +235,50 @@ def test_sweep_passes_through_the_stored_plan_at_the_lane_s_own_rate(
     assert at_own_rate == stored.primal_cost
     assert [p["rate_to"] for p in pieces[:-1]] == [p["rate_from"] for p in pieces[1:]]
     assert pieces[0]["rate_from"] == 0 and pieces[-1]["rate_to"] == 9
+
+
+def test_comparison_html_holds_the_same_rows_as_the_comparison(
+    engine: sa.Engine, write_folder, network_files, tmp_path
+) -> None:
+    from html.parser import HTMLParser
+
+    loaded_and_solved(write_folder, network_files)
+    create("less-rail", "capacity P2->W1 rail 10")
+    solve_scenario(engine, "less-rail")
+    page = tmp_path / "compare.html"
+    result = invoke("compare", "--scenario", "less-rail", "--html", str(page))
+    assert result.exit_code == 0, result.output
+
+    class Tables(HTMLParser):
+        def __init__(self) -> None:
+            super().__init__()
+            self.tables: list[list[list[str]]] = []
+            self.links = 0
+            self.in_cell = False
+
+        def handle_starttag(self, tag, attrs) -> None:
+            if tag == "table":
+                self.tables.append([])
+            elif tag == "tr":
+                self.tables[-1].append([])
+            elif tag in ("td", "th"):
+                self.tables[-1][-1].append("")
+                self.in_cell = True
+            elif tag in ("script", "link"):
+                self.links += 1
+
+        def handle_endtag(self, tag) -> None:
+            self.in_cell = self.in_cell and tag not in ("td", "th")
+
+        def handle_data(self, data) -> None:
+            if self.in_cell:
+                self.tables[-1][-1][-1] += data
+
+    parsed = Tables()
+    parsed.feed(page.read_text())
+    assert parsed.links == 0 and len(parsed.tables) == 3  # nothing became or stopped binding: no table
+    flows = parsed.tables[2]
+    assert flows[0] == ["lane", "flow a", "flow b", "change"]
+    compared = compare_runs(engine, *scenario_runs(engine, "less-rail")).flows
+    assert [row[0] for row in flows[1:]] == list(compared["lane"])
+    assert {row[0]: row[3] for row in flows[1:]} == {"P2->W1 rail": "-20", "P1->W1 road": "15", "P2->W1 road": "5"}

@@ -16,7 +16,18 @@ import typer
 from rich.table import Table
 
 from planner.cli.analysis import OutputFormat, number, units
-from planner.cli.common import COST_DECIMALS, DATABASE_URL, QUANTITY_DECIMALS, app, console, engine, fail, money, say
+from planner.cli.common import (
+    COST_DECIMALS,
+    DATABASE_URL,
+    QUANTITY_DECIMALS,
+    app,
+    console,
+    engine,
+    err_console,
+    fail,
+    money,
+    say,
+)
 from planner.errors import PlannerError
 
 scenario_app = typer.Typer(help="What-if scenarios: a base week plus edits, solved without touching it.",
@@ -121,7 +132,8 @@ def compare(
     runs: Optional[list[int]] = typer.Argument(None, help="Two run ids: the reference, then the one compared."),
     scenario: Optional[str] = typer.Option(None, "--scenario", "-s", help="Compare a scenario's latest run with its base week's."),
     section: Optional[str] = typer.Option(None, "--section", help="Only cost, prices, flows or binding."),
-    rows: int = typer.Option(15, "--rows", help="Rows per table (table format only)."),
+    rows: int = typer.Option(15, "--rows", help="Rows per table (table and HTML)."),
+    html: Optional[Path] = typer.Option(None, "--html", help="Also write the comparison as one self-contained HTML file."),
     output_format: OutputFormat = typer.Option(OutputFormat.table, "--format", help="table, csv or json."),
     database_url: Optional[str] = DATABASE_URL,
 ) -> None:
@@ -143,6 +155,11 @@ def compare(
         result = compare_runs(db, a, b)
     except PlannerError as err:
         fail(err)
+    if html is not None:
+        from planner.reports.html import render_comparison
+
+        html.write_text(render_comparison(result, rows=rows), encoding="utf-8")
+        err_console.print(f"comparison written to {html}", highlight=False, soft_wrap=True)
     chosen = [section] if section else list(SECTIONS)
     if output_format == OutputFormat.json:
         out = {name: records(result.section(name)) for name in chosen}
