@@ -9,11 +9,11 @@ import psycopg
 import pytest
 import sqlalchemy as sa
 
-from planner.core.edits import WeekNames, apply_edits
+from planner.core.edits import apply_edits
 from planner.database.history import prune
 from planner.database.snapshot import Scaling, read_snapshot
 from planner.reports.compare import compare_runs
-from planner.runs.scenarios import scenario_runs, solve_scenario
+from planner.runs.scenarios import scenario_runs, solve_scenario, week_names
 from tests.helpers import csv_rows, invoke
 from tests.reference_model import optimal_cost
 
@@ -22,7 +22,7 @@ SNAPSHOT_TABLES = ("load_batch", "site_version", "supply", "demand", "lane_rate"
 #: What the week views and cron see.
 WEEK_VIEWS = ("latest_week_run", "newest_week_run", "site_price_history", "lane_flow", "binding_capacity",
               "shortage", "run_summary", "limit_value")
-EDITS = ["close C3", "rate from P2 +8%", "demand C1 40", "capacity P1->W1 road none", "handling W1 0.25",
+EDITS = ["close C3", "rate from P2 +8%", "demand C1 40", "demand region south +10%", "capacity P1->W1 road none", "handling W1 0.25",
          "add-lane P2->C2 truck 4.5"]
 
 
@@ -67,11 +67,13 @@ def test_a_scenario_leaves_the_snapshot_resolve_and_the_week_views_as_they_were(
             "SELECT r.*, s.name, EXISTS (SELECT FROM run_pin p WHERE p.run_id = r.id) AS pinned "
             "FROM solve_run r JOIN scenario s ON s.id = r.scenario_id")).mappings().one()
         snap = read_snapshot(conn, "2026-W40", Scaling())
+        names = week_names(conn, snap)
     assert run["status"] == "optimal" and run["certificate_ok"] and run["pinned"]
     assert run["engine"] in ("warm", "ortools", "ortools after warm")
     from planner.core.edits import parse_edit
 
-    week, _ = apply_edits(snap.week, WeekNames(snap.site_code, snap.lane_mode), [parse_edit(e) for e in EDITS])
+    week, _ = apply_edits(snap.week, names, [parse_edit(e) for e in EDITS])
+    assert week.demand.tolist() != snap.week.demand.tolist()
     # scipy linprog(method="highs") on the edited week: the stored cost is its optimum
     assert run["primal_cost"] * 10_000 == optimal_cost(week)
 

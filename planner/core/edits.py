@@ -20,8 +20,8 @@ percentage change such as ``+8%`` or ``-12.5%``; ``none`` removes a limit):
                                 base week's capacity and minimum back
                                 (unlimited where the base had 0); a closed
                                 customer its demand (undoes a closure)
-``demand CUSTOMER|all VALUE``   a customer's demand, or every customer's
-``supply PLANT|all VALUE``      a plant's supply, or every plant's
+``demand CUSTOMERS VALUE``      demand of a customer, ``region NAME`` or ``all``
+``supply PLANTS VALUE``         supply of a plant, ``region NAME`` or ``all``
 ``rate LANES VALUE``            unit cost of the lanes
 ``capacity LANES VALUE|none``   lane capacity
 ``minimum LANES VALUE|none``    lane minimum commitment (``none``: 0)
@@ -33,7 +33,7 @@ percentage change such as ``+8%`` or ``-12.5%``; ``none`` removes a limit):
 ==============================  ==============================================
 
 ``LANES`` is one lane (``O->D`` or ``O->D MODE``), ``from SITE``, ``to SITE``,
-``mode MODE`` or ``all``. A percentage change is rounded half away from zero to
+``from region NAME``, ``to region NAME``, ``mode MODE`` or ``all``. A percentage change is rounded half away from zero to
 the week's precision; a figure given with more decimals than the precision is
 refused.
 """
@@ -108,6 +108,8 @@ class WeekNames:
 
     site_code: np.ndarray
     lane_mode: np.ndarray
+    #: Region of each site (None where unknown); targets ``region NAME`` need it.
+    site_region: np.ndarray | None = None
 
     def lane_keys(self, week: WeekData) -> np.ndarray:
         """``ORIGIN->DESTINATION MODE`` of every lane (no trailing space without a mode)."""
@@ -190,7 +192,7 @@ def apply_edits(
     state.check_solvable()
     if state.problems:
         raise ValidationError(state.problems)
-    return state.week(), WeekNames(state.site_code, state.lane_mode)
+    return state.week(), WeekNames(state.site_code, state.lane_mode, names.site_region)
 
 
 class _Editing:
@@ -204,6 +206,7 @@ class _Editing:
             if self.fields[name] is None:
                 self.fields[name] = np.zeros(week.n_sites, np.int64)
         self.site_code = np.asarray(names.site_code, dtype=object)
+        self.site_region = names.site_region
         self.lane_mode = np.array(names.lane_mode, dtype=object)
         self.decimals = {"cost": cost_decimals, "quantity": quantity_decimals}
         self.problems: list[Problem] = []
@@ -279,9 +282,21 @@ class _Editing:
             return None
         return site
 
+    def _region(self, edit: Edit, name: str) -> np.ndarray | None:
+        """Sites of region ``name``, or None (a problem recorded)."""
+        inside = None if self.site_region is None else self.site_region == name
+        if inside is None or not inside.any():
+            self._problem(edit, edit.target_column, name, "no site of the base week is in this region")
+            return None
+        return inside
+
     def _sites_of_kind(self, edit: Edit, kind: SiteKind) -> np.ndarray | None:
         if edit.target == "all":
             return self.fields["site_kind"] == kind
+        words = edit.target.split(maxsplit=1)
+        if len(words) == 2 and words[0] == "region":
+            inside = self._region(edit, words[1])
+            return None if inside is None else inside & (self.fields["site_kind"] == kind)
         site = self._site(edit, edit.target, kind)
         return None if site is None else np.arange(self.fields["site_kind"].shape[0]) == site
 
@@ -289,6 +304,11 @@ class _Editing:
         f, words = self.fields, edit.target.split()
         if words == ["all"]:
             return np.ones(f["lane_origin"].shape[0], bool)
+        if len(words) >= 3 and words[0] in ("from", "to") and words[1] == "region":
+            inside = self._region(edit, " ".join(words[2:]))
+            if inside is None:
+                return None
+            return inside[f["lane_origin" if words[0] == "from" else "lane_destination"]]
         if len(words) == 2 and words[0] in ("from", "to"):
             site = self._site(edit, words[1], None)
             if site is None:

@@ -34,7 +34,8 @@ def week() -> WeekData:
     )
 
 
-NAMES = WeekNames(np.array(CODES, dtype=object), np.array(MODES, dtype=object))
+REGIONS = ["north", "south", "north", "south", "north", "south"]
+NAMES = WeekNames(np.array(CODES, dtype=object), np.array(MODES, dtype=object), np.array(REGIONS, dtype=object))
 
 
 def edited(*words: str) -> WeekData:
@@ -66,6 +67,13 @@ CASES = [
     (["close C1", "open C1"], {}),
     (["demand C1 40"], {"demand": [(4, 30, 40)]}),
     (["demand all +10%"], {"demand": [(4, 30, 33), (5, 45, 50)]}),  # 49.5 rounds half away from zero
+    (["demand region south +20%"], {"demand": [(5, 45, 54)]}),
+    (["supply region north 10"], {"supply": [(0, 60, 10)]}),
+    (["rate from region south +100%"], {"lane_cost": [(2, 17_500, 35_000), (3, 30_000, 60_000), (6, 12_000, 24_000),
+                                                     (7, 9_000, 18_000)]}),
+    # W1->C1 costs 1 already: it is named but does not change
+    (["rate to region north 1"], {"lane_cost": [(0, 25_000, 10_000), (3, 30_000, 10_000), (6, 12_000, 10_000),
+                                                (8, 60_000, 10_000)]}),
     (["supply P2 35"], {"supply": [(1, 50, 35)]}),
     (["supply all -50%"], {"supply": [(0, 60, 30), (1, 50, 25)]}),
     (["rate P1->W1 road 2.6"], {"lane_cost": [(0, 25_000, 26_000)]}),
@@ -135,6 +143,7 @@ def test_edits_in_order_change_the_cost_as_highs_says() -> None:
         (Edit("rate", "P1->C2", "3", "edits.csv", 5), "target", "P1->C2", "no such lane"),
         (Edit("rate", "from W9", "3", "edits.csv", 5), "target", "W9", "no such site"),
         (Edit("demand", "P1", "3", "edits.csv", 6), "target", "P1", "customer only"),
+        (Edit("demand", "region west", "3", "edits.csv", 6), "target", "west", "no site of the base week"),
         (Edit("throughput", "C1", "3", "edits.csv", 6), "target", "C1", "warehouse only"),
         (Edit("rate", "all", "cheap", "edits.csv", 7), "value", "cheap", "not a number"),
         (Edit("rate", "all", "1.23456", "edits.csv", 7), "value", "1.23456", "more than 4 decimals"),
