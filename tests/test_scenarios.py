@@ -11,9 +11,9 @@ import sqlalchemy as sa
 
 from planner.core.edits import apply_edits
 from planner.database.history import prune
-from planner.database.snapshot import Scaling, read_snapshot
+from planner.database.snapshot import Scaling, read_snapshot, snapshot_names
 from planner.reports.compare import compare_runs
-from planner.runs.scenarios import scenario_runs, solve_scenario, week_names
+from planner.runs.scenarios import scenario_runs, solve_scenario
 from tests.helpers import csv_rows, invoke
 from tests.reference_model import optimal_cost
 
@@ -67,7 +67,7 @@ def test_a_scenario_leaves_the_snapshot_resolve_and_the_week_views_as_they_were(
             "SELECT r.*, s.name, EXISTS (SELECT FROM run_pin p WHERE p.run_id = r.id) AS pinned "
             "FROM solve_run r JOIN scenario s ON s.id = r.scenario_id")).mappings().one()
         snap = read_snapshot(conn, "2026-W40", Scaling())
-        names = week_names(conn, snap)
+        names = snapshot_names(conn, snap)
     assert run["status"] == "optimal" and run["certificate_ok"] and run["pinned"]
     assert run["engine"] in ("warm", "ortools", "ortools after warm")
     from planner.core.edits import parse_edit
@@ -284,3 +284,24 @@ def test_comparison_html_holds_the_same_rows_as_the_comparison(
     compared = compare_runs(engine, *scenario_runs(engine, "less-rail")).flows
     assert [row[0] for row in flows[1:]] == list(compared["lane"])
     assert {row[0]: row[3] for row in flows[1:]} == {"P2->W1 rail": "-20", "P1->W1 road": "15", "P2->W1 road": "5"}
+
+
+def test_explain_and_rate_ranges_read_a_scenario_run_on_its_own_figures(
+    engine: sa.Engine, write_folder, network_files
+) -> None:
+    from planner.reports.explain import explain_site
+
+    loaded_and_solved(write_folder, network_files)
+    create("short-cut", "add-lane P2->C2 truck 0.5", "capacity P2->C2 truck 12")
+    solve_scenario(engine, "short-cut")
+    base, run = scenario_runs(engine, "short-cut")
+    prices = compare_runs(engine, base, run).prices.set_index("site")
+    for site in ("C1", "C2", "C3"):
+        explanation = explain_site(engine, site, "2026-W40", run_id=run)
+        # the marginal route's running cost is the scenario run's stored price of the site
+        assert explanation.steps[-1].running == prices.loc[site, "price_b"]
+    assert "P2->C2 truck" in invoke("rate-ranges", "-p", "2026-W40", "--run", str(run), "--format", "csv").output
+    with engine.connect() as conn:
+        flow = conn.execute(sa.text("SELECT f.flow FROM run_flow f JOIN lane l ON l.id = f.lane_id "
+                                    "WHERE f.run_id = :r AND l.mode = 'truck'"), {"r": run}).scalar()
+    assert flow == 12  # the 0.50 lane is the cheapest way to C2 and fills up (worked out by hand)

@@ -40,7 +40,7 @@ from planner.core.solve import OPTIMAL
 from planner.core.week import NONE
 from planner.database.reopen import reopen_week
 from planner.database.results import NULL, RunKey, copy_text_rows, decimal_text, to_decimal
-from planner.database.snapshot import Scaling, current_batch, fetch_columns, read_snapshot, run_fingerprint
+from planner.database.snapshot import Scaling, current_batch, read_snapshot, run_fingerprint, snapshot_names
 from planner.errors import PlannerError, Problem, ValidationError
 from planner.runs.weekly import RunSummary, store_and_summarise
 
@@ -135,15 +135,6 @@ def command_line_edits(words: list[str]) -> list[Edit]:
     return [parse_edit(w, source="--edit", line=n) for n, w in enumerate(words, start=1)]
 
 
-def week_names(conn: Connection, snap) -> WeekNames:
-    """Site codes, lane modes and site regions of a snapshot, for resolving edits."""
-    rows = fetch_columns(conn, "SELECT site_id, region FROM site_version WHERE batch_id = %(b)s",
-                         {"b": snap.batch_id}, ints=["site_id"], texts=["region"], order_by="site_id")
-    region = np.full(snap.site_id.shape[0], None, dtype=object)
-    region[np.searchsorted(snap.site_id, rows["site_id"])] = rows["region"]
-    return WeekNames(snap.site_code, snap.lane_mode, region)
-
-
 def _change_of(edit: Edit) -> str | None:
     if not ACTIONS.get(edit.action):
         return None
@@ -175,7 +166,7 @@ def create_scenario(
     with engine.connect() as conn:
         period_id, batch_id, _ = current_batch(conn, base)
         snap = read_snapshot(conn, base, scaling, batch_id=batch_id)
-        names = week_names(conn, snap)
+        names = snapshot_names(conn, snap)
     apply_edits(snap.week, names, edits,
                 cost_decimals=scaling.cost_decimals, quantity_decimals=scaling.quantity_decimals)
     try:
@@ -267,7 +258,7 @@ def solve_scenario(engine: Engine, name: str, *, warm: bool = True) -> ScenarioR
         period_id, batch_id, snapshot_fp = current_batch(conn, period)
         note = _base_note(conn, sc, batch_id)
         snap = read_snapshot(conn, period, scaling, batch_id=batch_id)
-        names = week_names(conn, snap)
+        names = snapshot_names(conn, snap)
         week, names = apply_edits(snap.week, names, edits, cost_decimals=scaling.cost_decimals,
                                   quantity_decimals=scaling.quantity_decimals)
         base = _base_run(conn, snap, scaling) if warm else None
@@ -414,7 +405,7 @@ def sweep_rate(
             sc, edits = _scenario(conn, scenario)
             period, scaling = sc["period"], Scaling(sc["cost_decimals"], sc["quantity_decimals"])
         snap = read_snapshot(conn, period, scaling)
-        names = week_names(conn, snap)
+        names = snapshot_names(conn, snap)
     week, names = apply_edits(snap.week, names, edits,
                               cost_decimals=scaling.cost_decimals, quantity_decimals=scaling.quantity_decimals)
     found = np.flatnonzero(names.lane_keys(week) == " ".join(lane.split()))
