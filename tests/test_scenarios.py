@@ -305,3 +305,17 @@ def test_explain_and_rate_ranges_read_a_scenario_run_on_its_own_figures(
         flow = conn.execute(sa.text("SELECT f.flow FROM run_flow f JOIN lane l ON l.id = f.lane_id "
                                     "WHERE f.run_id = :r AND l.mode = 'truck'"), {"r": run}).scalar()
     assert flow == 12  # the 0.50 lane is the cheapest way to C2 and fills up (worked out by hand)
+
+
+def test_show_and_list_give_the_edits_in_order_and_the_runs(engine: sa.Engine, write_folder, network_files) -> None:
+    loaded_and_solved(write_folder, network_files)
+    create("two", "rate mode rail -5%", "close C3")
+    done = solve_scenario(engine, "two")
+    shown = invoke("scenario", "show", "two")
+    assert shown.exit_code == 0, shown.output
+    first, second = shown.output.index("rate mode rail -5%"), shown.output.index("close C3")
+    assert first < second and "--edit:1" in shown.output and "--edit:2" in shown.output
+    assert str(done.summary.run_id) in shown.output
+    listed = invoke("scenario", "list")
+    assert "two" in listed.output and "2026-W40" in listed.output
+    assert invoke("scenario", "show", "nothing").exit_code == 2

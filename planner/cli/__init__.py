@@ -5,7 +5,7 @@
 :mod:`.data`            ``init``, ``load``, ``periods``
 :mod:`.solving`         ``solve``, ``resolve``, ``certificate``
 :mod:`.analysis`        ``prices``, ``report``, ``explain``
-:mod:`.scenarios`       ``scenario create|solve|list``, ``compare``
+:mod:`.scenarios`       ``scenario create|solve|list|show``, ``compare``, ``sweep``
 :mod:`.demo`            ``demo``
 =====================  ==============================================
 

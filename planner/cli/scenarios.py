@@ -1,4 +1,4 @@
-"""What-if commands: ``scenario create``, ``scenario solve``, ``scenario list``, and ``compare``.
+"""What-if commands: ``scenario create|solve|list|show``, ``compare`` and ``sweep``.
 
 A scenario is a base week plus edits (``--edit "close W03"``, or a CSV/TOML
 file of them); solving it stores a run of its own that the week views and
@@ -124,6 +124,30 @@ def list_command(database_url: Optional[str] = DATABASE_URL) -> None:
     for r in rows:
         table.add_row(r["name"], r["base"], str(r["edits"]), str(r["run_id"] or "-"), r["status"] or "-",
                       money(r["cost"]), r["engine"] or "-", r["created_by"], r["description"] or "")
+    console.print(table)
+
+
+@scenario_app.command("show")
+def show(name: str = typer.Argument(..., help="Scenario name."), database_url: Optional[str] = DATABASE_URL) -> None:
+    """A scenario's base week, its edits in order (with where each was written) and its runs.
+
+    Example: planner scenario show no-w03
+    """
+    from planner.runs.scenarios import scenario_details
+
+    try:
+        sc, edits, runs = scenario_details(engine(database_url), name)
+    except PlannerError as err:
+        fail(err)
+    say(f"scenario {sc['name']} on {sc['period']} (batch {sc['batch_id']} when made), by {sc['created_by']} "
+        f"at {sc['created_at']:%Y-%m-%d %H:%M}" + (f": {sc['description']}" if sc["description"] else ""))
+    table = Table("#", "edit", "written in", title="Edits, applied in this order")
+    for k, e in enumerate(edits, start=1):
+        table.add_row(str(k), e.text(), f"{e.source}:{e.line}")
+    console.print(table)
+    table = Table("run", "status", "cost", "engine", "batch", title="Runs")
+    for r in runs:
+        table.add_row(str(r["run_id"]), r["status"], money(r["cost"]), r["engine"] or "-", str(r["batch_id"]))
     console.print(table)
 
 

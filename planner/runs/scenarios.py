@@ -44,8 +44,8 @@ from planner.database.snapshot import Scaling, current_batch, read_snapshot, run
 from planner.errors import PlannerError, Problem, ValidationError
 from planner.runs.weekly import RunSummary, store_and_summarise
 
-__all__ = ["ScenarioRun", "SweepPiece", "create_scenario", "list_scenarios", "read_edit_file", "scenario_runs",
-           "solve_scenario", "sweep_rate"]
+__all__ = ["ScenarioRun", "SweepPiece", "create_scenario", "list_scenarios", "read_edit_file", "scenario_details",
+           "scenario_runs", "solve_scenario", "sweep_rate"]
 
 _COLUMNS = ("action", "target", "value")
 
@@ -340,6 +340,22 @@ def list_scenarios(engine: Engine) -> list[dict]:
             "ORDER BY sr.id DESC LIMIT 1) r ON true ORDER BY s.name"
         )).mappings()
         return [dict(r) for r in rows]
+
+
+def scenario_details(engine: Engine, name: str) -> tuple[dict, list[Edit], list[dict]]:
+    """A scenario's row (with its base week), its edits in order, and its runs (newest first).
+
+    Raises
+    ------
+    PlannerError
+        When there is no such scenario.
+    """
+    with engine.connect() as conn:
+        sc, edits = _scenario(conn, name)
+        runs = conn.execute(text(
+            "SELECT r.id AS run_id, r.status, r.primal_cost AS cost, r.engine, r.batch_id, r.finished_at "
+            "FROM solve_run r WHERE r.scenario_id = :s ORDER BY r.id DESC"), {"s": sc["id"]}).mappings()
+        return dict(sc), edits, [dict(r) for r in runs]
 
 
 def scenario_runs(engine: Engine, name: str) -> tuple[int, int]:
