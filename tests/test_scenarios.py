@@ -196,6 +196,8 @@ def test_edit_file_errors_name_file_line_column_and_value(engine: sa.Engine, wri
     assert f"{toml}:4: column value: value 'cheap': not a number" in result.output
     with engine.connect() as conn:
         assert conn.execute(sa.text("SELECT count(*) FROM scenario")).scalar() == 0
+    missing = invoke("scenario", "create", "bad", "--base", "2026-W40", "--edits-file", str(tmp_path / "none.csv"))
+    assert missing.exit_code == 2 and "none.csv: cannot read the edit file" in missing.output
     good = tmp_path / "good.toml"
     good.write_text('[[edit]]\naction = "close"\ntarget = "C3"\n')
     assert invoke("scenario", "create", "ok", "--base", "2026-W40", "--edits-file", str(good)).exit_code == 0

@@ -70,7 +70,11 @@ def read_edit_file(path: Path) -> list[Edit]:
         Naming file, line, column and value of a missing column, an unknown
         action or an edit without its value.
     """
-    name, raw = str(path), Path(path).read_text(encoding="utf-8")
+    name = str(path)
+    try:
+        raw = Path(path).read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as err:
+        raise ValidationError([Problem(name, None, None, None, f"cannot read the edit file: {err}")]) from None
     if Path(path).suffix.lower() == ".toml":
         return _toml_edits(name, raw)
     reader = csv.DictReader(io.StringIO(raw))
