@@ -6,6 +6,8 @@ import dataclasses
 
 import numpy as np
 import pytest
+from hypothesis import given
+from hypothesis import strategies as st
 
 from planner.core.edits import Edit, WeekNames, apply_edits, parse_edit
 from planner.core.network import assemble_instance
@@ -13,6 +15,7 @@ from planner.core.optimize import optimize
 from planner.core.week import WeekData
 from planner.errors import ValidationError
 from tests.reference_model import optimal_cost
+from tests.strategies import week_data
 
 CODES = ["P1", "P2", "W1", "W2", "C1", "C2"]
 # lanes:      0: P1->W1 road  1: P1->W2 road  2: P2->W2 rail  3: P2->W1 road  4: W1->C1 road
@@ -182,3 +185,44 @@ def test_quantities_follow_the_quantity_precision() -> None:
     assert new.demand[4] == 305
     with pytest.raises(ValidationError):
         apply_edits(week(), NAMES, [parse_edit("demand C1 30.5")])
+
+
+@st.composite
+def edited_week(draw):
+    """A random week and a few random edits of it, with names for its sites and lanes."""
+    base = draw(week_data(feasible=True))
+    codes = np.array([f"S{i}" for i in range(base.n_sites)], dtype=object)
+    names = WeekNames(codes, np.array(["road"] * base.n_lanes, dtype=object))
+    keys = names.lane_keys(base)
+    plants = codes[base.site_kind == 0]
+    customers = codes[base.site_kind == 2]
+    percent = st.integers(-50, 80).map(lambda p: f"{p:+d}%")
+    templates = st.one_of(
+        st.tuples(st.just("rate"), st.sampled_from(list(keys)), percent),
+        st.tuples(st.just("rate"), st.sampled_from([f"from {c}" for c in codes]), st.integers(0, 20).map(str)),
+        st.tuples(st.just("capacity"), st.sampled_from(list(keys)), st.sampled_from(["none", "+50%", "-20%"])),
+        st.tuples(st.just("minimum"), st.sampled_from(list(keys)), st.just("none")),
+        st.tuples(st.just("demand"), st.sampled_from(["all"] + list(customers)), percent),
+        st.tuples(st.just("supply"), st.sampled_from(["all"] + list(plants)), st.sampled_from(["+10%", "+50%"])),
+        st.tuples(st.just("add-lane"), st.sampled_from([f"{p}->{c} truck" for p in plants for c in customers]),
+                  st.integers(0, 9).map(str)),
+    )
+    edits = [Edit(a, t, v, "edits.csv", n) for n, (a, t, v) in enumerate(draw(st.lists(templates, max_size=4)), 2)]
+    return base, names, edits
+
+
+@given(edited_week())
+def test_random_edits_solve_to_the_cost_scipy_highs_finds(case) -> None:
+    base, names, edits = case
+    try:
+        new, _ = apply_edits(base, names, edits)
+    except ValidationError as err:
+        # only an edit that adds a lane twice or leaves a minimum above a capacity is refused
+        assert all("already has this lane" in p.reason or "minimum above" in p.reason for p in err.problems)
+        return
+    outcome = optimize(assemble_instance(new))
+    reference = optimal_cost(new)  # scipy linprog(method="highs") on the edited week
+    if reference is None:
+        assert outcome.status == "infeasible"
+    else:
+        assert outcome.status == "optimal" and outcome.certificate.primal_cost == reference
