@@ -321,3 +321,16 @@ def test_show_and_list_give_the_edits_in_order_and_the_runs(engine: sa.Engine, w
     listed = invoke("scenario", "list")
     assert "two" in listed.output and "2026-W40" in listed.output
     assert invoke("scenario", "show", "nothing").exit_code == 2
+
+
+def test_solving_several_scenarios_goes_on_past_a_bad_one(engine: sa.Engine, write_folder, network_files) -> None:
+    loaded_and_solved(write_folder, network_files)
+    create("first", "rate all +5%")
+    create("last", "demand C1 31")
+    result = invoke("scenario", "solve", "first", "missing", "last")
+    assert result.exit_code == 2
+    assert "missing: no scenario named 'missing'" in result.output
+    with engine.connect() as conn:
+        solved = list(conn.execute(sa.text("SELECT s.name FROM solve_run r JOIN scenario s ON s.id = r.scenario_id "
+                                           "WHERE r.status = 'optimal' ORDER BY r.id")).scalars())
+    assert solved == ["first", "last"]

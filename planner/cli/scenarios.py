@@ -14,6 +14,7 @@ from typing import Optional
 
 import typer
 from rich.table import Table
+from rich.text import Text
 
 from planner.cli.analysis import OutputFormat, number, units
 from planner.cli.common import (
@@ -89,12 +90,15 @@ def _solve_and_print(db, names: list[str], warm: bool = True) -> None:
     from planner.runs.weekly import certificate_word
 
     table = Table("scenario", "run", "status", "cost", "engine", "certificate", "seconds", title="Scenario runs")
-    failed = False
+    failed, errors = False, []
     for name in names:
         try:
             done = solve_scenario(db, name, warm=warm)
         except PlannerError as err:
-            fail(err)
+            # the other scenarios go on; this one stored nothing
+            errors.append(f"{name}: {err}")
+            table.add_row(name, "-", "not solved", "-", "-", "-", "-")
+            continue
         s = done.summary
         failed |= not s.ok
         table.add_row(name, str(s.run_id), s.status, money(s.cost), done.engine or "-",
@@ -104,8 +108,10 @@ def _solve_and_print(db, names: list[str], warm: bool = True) -> None:
         if not s.ok:
             say(f"{name}: {s.message}")
     console.print(table)
-    if failed:
-        raise typer.Exit(1)
+    for error in errors:
+        err_console.print(Text.assemble(("error: ", "bold red"), error), highlight=False, soft_wrap=True)
+    if errors or failed:
+        raise typer.Exit(2 if errors else 1)
 
 
 @scenario_app.command("list")
