@@ -301,9 +301,15 @@ def test_demo_solves_every_week_prints_costs_movers_and_a_psql_line_without_pass
     with engine.connect() as conn:
         runs = conn.execute(
             text("SELECT p.code, r.primal_cost, r.status, r.certificate_ok FROM solve_run r "
-                 "JOIN period p ON p.id = r.period_id ORDER BY p.starts_on")
+                 "JOIN period p ON p.id = r.period_id WHERE r.scenario_id IS NULL ORDER BY p.starts_on")
         ).all()
+        closure = conn.execute(text("SELECT s.name, r.status, r.certificate_ok FROM solve_run r "
+                                    "JOIN scenario s ON s.id = r.scenario_id")).one()
     assert len(runs) == 8
+    # the demo ends with a warehouse closure on the last week, compared with that week's plan
+    assert closure.name.startswith("close W") and closure.name.endswith(runs[-1][0])
+    assert closure.status == "optimal" and closure.certificate_ok
+    assert f"scenario '{closure.name}': optimal" in result.stdout and "determined" in result.stdout
     for code, cost, status, ok in runs:
         assert status == "optimal" and ok
         row = next(line for line in lines if line.startswith(f"│ {code} "))
@@ -311,7 +317,8 @@ def test_demo_solves_every_week_prints_costs_movers_and_a_psql_line_without_pass
 
     movers = price_movers(engine)
     assert len(movers) == 10
-    mover_lines = [line for line in lines if re.search(r"│\s*(C|W|P)\d+\s*│", line)]
+    before_scenario = lines[: next(i for i, line in enumerate(lines) if line.startswith("scenario "))]
+    mover_lines = [line for line in before_scenario if re.search(r"│\s*(C|W|P)\d+\s*│", line)]
     assert [re.search(r"│\s*(\S+)", line).group(1) for line in mover_lines] == [m["site"] for m in movers]
 
     # The last lines advise what works after the command has ended.
@@ -332,8 +339,7 @@ def test_demo_flows_reproduce_the_stored_cost_exactly_in_sql(engine, tmp_path):
                 lanes AS (
                   SELECT f.run_id, sum(f.flow * lr.unit_cost) AS cost FROM run_flow f
                   JOIN runs r ON r.id = f.run_id
-                  JOIN lane_rate lr ON lr.batch_id = r.batch_id AND lr.period_id = r.period_id
-                                   AND lr.lane_id = f.lane_id
+                  JOIN LATERAL run_lane_rate(r.id) lr ON lr.lane_id = f.lane_id
                   GROUP BY f.run_id),
                 handling AS (
                   SELECT p.run_id, sum(coalesce(p.throughput_flow * sv.handling_cost, 0)) AS cost
@@ -353,7 +359,7 @@ def test_demo_flows_reproduce_the_stored_cost_exactly_in_sql(engine, tmp_path):
                 """
             )
         ).mappings().all()
-    assert len(rows) == 8
+    assert len(rows) == 9  # eight weeks and the closure scenario, whose closed lanes' figures are its own
     assert all(r["equal"] for r in rows), [dict(r) for r in rows if not r["equal"]]
     assert all(r["handling"] > 0 for r in rows)  # the identity is not carried by lanes alone
 

@@ -167,14 +167,14 @@ WHERE r.shortage > 0
 # The capacities at their bound (lanes, warehouses, storage), ranked by the exact
 # value of one more unit; a limit worth nothing is full but not binding: no rank.
 # Pre-0004 runs show their stored bound (exact = false) with no value of one unit less.
-_AT_CAPACITY = f"""
-    SELECT p.code AS period, p.starts_on, rp.run_id, {{kind}} AS kind, {{label}} AS label,
-           lim.loosen_value AS capacity_value, {{capacity}} AS capacity, lim.flow,
-           {{ends}}, lim.exact, lim.tighten_cost, lim.loosen_units, lim.tighten_units, lim.tighten_blocked
+_AT_CAPACITY = """
+    SELECT p.code AS period, p.starts_on, rp.run_id, {kind} AS kind, {label} AS label,
+           lim.loosen_value AS capacity_value, {capacity} AS capacity, lim.flow,
+           {ends}, lim.exact, lim.tighten_cost, lim.loosen_units, lim.tighten_units, lim.tighten_blocked
     FROM run_period rp
     JOIN period p ON p.id = rp.period_id
-    JOIN run_limit lim ON lim.run_id = rp.run_id AND lim.period = p.code AND lim.limit_kind = {{limit}}
-    {{joins}}"""
+    JOIN run_limit lim ON lim.run_id = rp.run_id AND lim.period = p.code AND lim.limit_kind = {limit}
+    {joins}"""
 _SITE_LIMIT_JOINS = """JOIN site_version sv ON sv.batch_id = rp.batch_id AND sv.site_id = lim.ref_id
     JOIN site s ON s.id = lim.ref_id"""
 _LANE_LIMIT_JOINS = """JOIN lane l ON l.id = lim.ref_id

@@ -7,6 +7,7 @@
 :mod:`.analysis`        ``report``, ``explain``, ``prices``, ``rate-ranges``
 :mod:`.history`         ``prune``, ``pin``, ``unpin``
 :mod:`.shell`           ``sql``, ``server start|status|stop``
+:mod:`.scenarios`       ``scenario create|solve|list|show``, ``compare``, ``sweep``
 :mod:`.demo`            ``demo``
 =====================  ==============================================
 
@@ -24,6 +25,7 @@ from planner.cli import solving  # noqa: F401  (registers solve, resolve, runs, 
 from planner.cli import analysis  # noqa: F401  (registers report, explain, prices, rate-ranges)
 from planner.cli import history  # noqa: F401  (registers prune, pin, unpin)
 from planner.cli import shell  # noqa: F401  (registers sql, server)
+from planner.cli import scenarios  # noqa: F401  (registers scenario, compare, sweep)
 from planner.cli import demo  # noqa: F401  (registers demo)
 # isort: on
 

@@ -51,7 +51,7 @@ VERBOSE_ENV = "PLANNER_VERBOSE"
 #: The commands in the order of the workflow, as ``planner --help`` lists them.
 WORKFLOW = (
     "init", "currency", "load", "periods", "solve", "resolve", "runs", "certificate", "report", "explain",
-    "prices", "rate-ranges", "pin", "unpin", "prune", "sql", "server", "demo",
+    "prices", "rate-ranges", "scenario", "compare", "sweep", "pin", "unpin", "prune", "sql", "server", "demo",
 )
 
 _state = {"verbose": False, "url": None}

@@ -27,11 +27,12 @@ def demo(
     folder: Optional[Path] = typer.Option(None, "--folder", metavar="FOLDER", help="Where to write the demo CSVs (default: $PLANNER_HOME/demo)."),
     database_url: Optional[str] = DATABASE_URL,
 ) -> None:
-    """Build, load and solve a fictional network; show what moved.
+    """Build, load and solve a fictional network; show what moved and what a warehouse closure would do.
 
     The demo network (plants P01-P03, warehouses W01-W06, customers C01-C60,
     weeks 2026-W45..2026-W52) is written as CSV files, loaded and solved week
-    by week.
+    by week. It ends with a scenario: one warehouse closed in the last week,
+    compared with that week's plan.
 
     Example: planner demo
     """
@@ -55,6 +56,8 @@ def demo(
     for m in report.movers:
         movers.add_row(m["site"], m["kind"], m["region"] or "", money(m["low"]), money(m["high"]), money(m["moved"]))
     console.print(movers)
+    if report.scenario is not None:
+        _print_scenario(db_engine, report)
     site = report.movers[0]["site"] if report.movers else "C17"
     query = f"SELECT * FROM site_price_history WHERE site = '{site}' ORDER BY period;"
     for line in _next_steps(url, embedded, query):
@@ -63,6 +66,22 @@ def demo(
         say("(add the same --database-url to each of these commands)")
     if any(not s.ok for s in report.runs):
         raise typer.Exit(EXIT_NOT_OPTIMAL)
+
+
+def _print_scenario(db_engine, report) -> None:
+    """The closure scenario's comparison with its base week, as one short table."""
+    from planner.cli.scenarios import comparison_table
+    from planner.reports.compare import compare_runs
+
+    done = report.scenario
+    say(f"\nscenario {done.scenario!r}: {done.summary.status}, engine {done.engine or '-'}")
+    if report.compared is None:
+        say(done.summary.message)
+        return
+    result = compare_runs(db_engine, *report.compared)
+    say(result.headline())
+    console.print(comparison_table(result, "prices", 5))
+    say(f"more: planner compare --scenario '{done.scenario}'   (or --format csv, --section flows)")
 
 
 def _next_steps(url: str, embedded: bool, query: str) -> list[str]:

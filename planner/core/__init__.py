@@ -14,6 +14,8 @@
 :mod:`.certificate`     the exact optimality certificate
 :mod:`.diagnose`        why a week has no plan: min cut of an infeasible week, unbounded cycles
 :mod:`.explain`         the marginal route behind a price, in words
+:mod:`.edits`           what-if edits of a week's arrays (close a site, demand, rates, limits, lanes)
+:mod:`.sweep`           exact breakpoints of the optimal cost as one lane's rate varies
 :mod:`.engines`         warm re-solves from a similar week's optimum; OR-Tools cold otherwise
 :mod:`._warm`           the warm engine's routing loop (C, built at install, loaded with ctypes)
 :mod:`.optimize`        the entry point: instance -> ``Outcome`` (flow, prices, certificate)

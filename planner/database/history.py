@@ -45,9 +45,9 @@ def ensure_partitions(conn: Connection, periods) -> None:
 _RANKED = """
 WITH ranked AS (
     SELECT r.id, r.kind, r.status, r.first_period_id, r.last_period_id,
-           row_number() OVER (PARTITION BY r.kind, r.first_period_id, r.last_period_id
+           row_number() OVER (PARTITION BY r.kind, r.scenario_id, r.first_period_id, r.last_period_id
                               ORDER BY r.finished_at DESC NULLS FIRST, r.id DESC) AS place,
-           row_number() OVER (PARTITION BY r.kind, r.first_period_id, r.last_period_id, r.status = 'optimal'
+           row_number() OVER (PARTITION BY r.kind, r.scenario_id, r.first_period_id, r.last_period_id, r.status = 'optimal'
                               ORDER BY r.finished_at DESC NULLS FIRST, r.id DESC) AS place_in_status,
            EXISTS (SELECT FROM run_pin pin WHERE pin.run_id = r.id) AS pinned
     FROM solve_run r

@@ -36,7 +36,11 @@ __all__ = [
     "Period",
     "PeriodSnapshot",
     "PlannerLock",
+    "EDIT_ACTIONS",
+    "Scenario",
+    "ScenarioEdit",
     "RunFlow",
+    "RunLaneEdit",
     "RunLimit",
     "RunPin",
     "RunSitePrice",
@@ -259,6 +263,10 @@ class SolveRun(Base):
     arc_count: Mapped[int | None]
     #: The planner version that stored the run (migration 0004; None before).
     planner_version: Mapped[str | None] = mapped_column(sa.Text)
+    #: The scenario the run solved; None for the real plan (migration 0009).
+    scenario_id: Mapped[int | None] = mapped_column(sa.BigInteger, sa.ForeignKey("scenario.id"), index=True)
+    #: Which engine produced the flow: ``ortools``, ``warm``, ``ortools after warm`` (migration 0009).
+    engine: Mapped[str | None] = mapped_column(sa.Text)
 
 
 #: The result tables are LIST-partitioned by their ``period`` (the week's code), one
@@ -364,6 +372,63 @@ class RunPin(Base):
     pinned_at: Mapped[datetime.datetime] = mapped_column(sa.DateTime(timezone=True), server_default=sa.func.now())
     pinned_by: Mapped[str] = mapped_column(sa.Text, server_default=sa.text("current_user"))
     note: Mapped[str | None] = mapped_column(sa.Text)
+
+
+class Scenario(Base):
+    """A named what-if on a base week: its edits never touch the base snapshot (migration 0009)."""
+
+    __tablename__ = "scenario"
+
+    id: Mapped[int] = mapped_column(sa.BigInteger, sa.Identity(), primary_key=True)
+    name: Mapped[str] = mapped_column(sa.Text, unique=True)
+    description: Mapped[str | None] = mapped_column(sa.Text)
+    period_id: Mapped[int] = mapped_column(sa.ForeignKey("period.id"))
+    #: The batch whose snapshot the edits were checked against.
+    batch_id: Mapped[int] = mapped_column(sa.BigInteger, sa.ForeignKey("load_batch.id"))
+    cost_decimals: Mapped[int]
+    quantity_decimals: Mapped[int]
+    created_at: Mapped[datetime.datetime] = mapped_column(sa.DateTime(timezone=True), server_default=sa.func.now())
+    created_by: Mapped[str] = mapped_column(sa.Text, server_default=sa.text("current_user"))
+
+
+EDIT_ACTIONS = ("close", "open", "demand", "supply", "rate", "capacity", "minimum", "throughput", "handling",
+                "holding", "storage", "add-lane")
+
+
+class ScenarioEdit(Base):
+    """One edit of a scenario, as written, in order."""
+
+    __tablename__ = "scenario_edit"
+    __table_args__ = (
+        sa.CheckConstraint(_in_list("action", EDIT_ACTIONS), name="action"),
+        sa.CheckConstraint(_in_list("change", ("set", "percent", "remove")), name="change"),
+    )
+
+    scenario_id: Mapped[int] = mapped_column(
+        sa.BigInteger, sa.ForeignKey("scenario.id", ondelete="CASCADE"), primary_key=True
+    )
+    position: Mapped[int] = mapped_column(primary_key=True)
+    action: Mapped[str] = mapped_column(sa.Text)
+    target: Mapped[str] = mapped_column(sa.Text)
+    value: Mapped[str] = mapped_column(sa.Text, server_default=sa.text("''"))
+    #: How the value changes the figure: set, percent or remove; None for close/open.
+    change: Mapped[str | None] = mapped_column(sa.Text)
+    source: Mapped[str] = mapped_column(sa.Text)
+    source_line: Mapped[int]
+
+
+class RunLaneEdit(Base):
+    """A lane figure a scenario run used where it differs from the base snapshot (edited or added lanes)."""
+
+    __tablename__ = "run_lane_edit"
+
+    run_id: Mapped[int] = mapped_column(
+        sa.BigInteger, sa.ForeignKey("solve_run.id", ondelete="CASCADE"), primary_key=True
+    )
+    lane_id: Mapped[int] = mapped_column(primary_key=True)
+    unit_cost: Mapped[Decimal]
+    capacity: Mapped[Decimal | None]
+    min_quantity: Mapped[Decimal]
 
 
 class PlannerLock(Base):

@@ -7,19 +7,23 @@ stood when the run was stored, checked against the run's input fingerprint),
 the instance is built from it, and the stored flows (lanes, warehouse
 throughput, spare supply, shortage, stock carried between weeks) are put back
 on its arcs. A flow that does not balance on the rebuilt instance is refused.
+A scenario's run comes back on its own figures: the snapshot it was solved on
+with the scenario's edits applied (added lanes at the end).
 """
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass
 
 import numpy as np
 from sqlalchemy import Connection, text
 
+from planner.core.edits import Edit, apply_edits
 from planner.core.network import ArcKind, Instance, time_expand
 from planner.core.week import WeekData
 from planner.database.linked import horizon_fingerprint, horizon_snapshots
-from planner.database.snapshot import Scaling, Snapshot, fetch_columns, read_snapshot
+from planner.database.snapshot import Scaling, Snapshot, fetch_columns, read_snapshot, snapshot_names
 from planner.errors import PlannerError
 
 __all__ = ["StoredRun", "StoredWeek", "reopen_run", "reopen_week"]
@@ -90,12 +94,17 @@ def reopen_run(conn: Connection, run_id: int) -> StoredRun:
     return _reopen(conn, run_id)[0]
 
 
-def _reopen(conn: Connection, run_id: int) -> tuple[StoredRun, Snapshot | None]:
-    """The run read back, and the snapshot of a week run (None for a horizon)."""
+def _reopen(conn: Connection, run_id: int, snapshot: Snapshot | None = None) -> tuple[StoredRun, Snapshot | None]:
+    """The run read back, and the snapshot of a week run (None for a horizon).
+
+    ``snapshot``, when given, must have been read at the run's precision; when it
+    is of a week run's batch it is used instead of reading the snapshot again.
+    """
     snap = None
     row = conn.execute(
         text(
             "SELECT r.kind, r.status, r.batch_id, r.cost_decimals, r.quantity_decimals, r.input_fingerprint, "
+            "coalesce(r.scenario_id, 0) AS scenario, "
             "f.code AS first_period, l.code AS last_period FROM solve_run r "
             "JOIN period f ON f.id = r.first_period_id JOIN period l ON l.id = r.last_period_id WHERE r.id = :run"
         ),
@@ -107,7 +116,11 @@ def _reopen(conn: Connection, run_id: int) -> tuple[StoredRun, Snapshot | None]:
         raise PlannerError(f"run {run_id} ended {row['status']}: it stored no plan to read back")
     scaling = Scaling(int(row["cost_decimals"]), int(row["quantity_decimals"]))
     if row["kind"] == "week":
-        snap = read_snapshot(conn, row["first_period"], scaling, batch_id=int(row["batch_id"]))
+        batch = int(row["batch_id"])
+        same = snapshot is not None and snapshot.batch_id == batch
+        snap = snapshot if same else read_snapshot(conn, row["first_period"], scaling, batch_id=batch)
+        if row["scenario"]:
+            snap = _with_edits(conn, snap, int(row["scenario"]), scaling)
         merged = _one_week(snap)
         periods, period_ids = [snap.period], np.array([snap.period_id])
     else:
@@ -188,7 +201,8 @@ def _stored_flow(
     def table(found: dict, ids: np.ndarray, key: str, column: str) -> np.ndarray:
         out = np.zeros((len(period_ids), ids.shape[0]), np.int64)
         t = order[np.searchsorted(period_ids[order], found["period_id"])]
-        out[t, np.searchsorted(ids, found[key])] = found[column]
+        by_id = np.argsort(ids, kind="stable")  # a scenario's added lanes come last, whatever their ids
+        out[t, by_id[np.searchsorted(ids[by_id], found[key])]] = found[column]
         return out
 
     site_ids, lane_ids = merged["site_id"], merged["lane_id"]
@@ -212,8 +226,11 @@ def _stored_flow(
     return flow
 
 
-def reopen_week(conn: Connection, period: str, run_id: int | None = None) -> StoredWeek:
+def reopen_week(conn: Connection, period: str, run_id: int | None = None, snapshot: Snapshot | None = None) -> StoredWeek:
     """The latest optimal run of ``period`` (or week run ``run_id`` of it) read back as arrays.
+
+    ``snapshot``, when given, must have been read at the run's precision; when it
+    is of the run's batch it is used instead of reading the snapshot again.
 
     Raises
     ------
@@ -232,5 +249,29 @@ def reopen_week(conn: Connection, period: str, run_id: int | None = None) -> Sto
             f"no optimal run of {period}" + (f" with id {run_id}" if run_id else "")
             + "; list runs with `planner runs`"
         )
-    stored, snap = _reopen(conn, int(found))
+    stored, snap = _reopen(conn, int(found), snapshot)
     return StoredWeek(stored.run_id, period, stored.scaling, snap, stored.instance, stored.flow)
+
+
+def _with_edits(conn: Connection, snap: Snapshot, scenario: int, scaling: Scaling) -> Snapshot:
+    """The snapshot with the scenario's edits applied, and the database ids of its added lanes."""
+    edits = [
+        Edit(r.action, r.target, r.value, r.source, r.source_line)
+        for r in conn.execute(text("SELECT * FROM scenario_edit WHERE scenario_id = :s ORDER BY position"),
+                              {"s": scenario})
+    ]
+    week, names = apply_edits(snap.week, snapshot_names(conn, snap), edits, cost_decimals=scaling.cost_decimals,
+                              quantity_decimals=scaling.quantity_decimals)
+    n = snap.lane_id.shape[0]
+    added = [
+        conn.execute(
+            text("SELECT id FROM lane WHERE origin_id = :o AND destination_id = :d AND mode = :m"),
+            {"o": int(snap.site_id[week.lane_origin[k]]), "d": int(snap.site_id[week.lane_destination[k]]),
+             "m": str(names.lane_mode[k])},
+        ).scalar_one()
+        for k in range(n, week.n_lanes)
+    ]
+    return dataclasses.replace(
+        snap, week=week, lane_mode=np.asarray(names.lane_mode, dtype=object),
+        lane_id=np.concatenate([snap.lane_id, np.array(added, dtype=np.int64)]),
+    )

@@ -71,6 +71,10 @@ def _copy_rows(conn: Connection, table: str, columns: list[str], cols: list[list
             copy.write(body)
 
 
+#: COPY of text rows built column-wise, for other stores of run rows.
+copy_text_rows = _copy_rows
+
+
 @dataclass(frozen=True)
 class RunKey:
     """What a run was solved from."""
@@ -81,6 +85,8 @@ class RunKey:
     last_period_id: int
     batch_id: int | None
     input_fingerprint: str
+    #: The scenario a run solves (None for the real plan).
+    scenario_id: int | None = None
 
 
 def insert_run(
@@ -90,8 +96,12 @@ def insert_run(
     inst: Instance | None,
     outcome: Outcome,
     total_seconds: float,
+    engine: str | None = None,
 ) -> int:
-    """Insert the ``solve_run`` row of an outcome and return its id."""
+    """Insert the ``solve_run`` row of an outcome and return its id.
+
+    ``engine`` names what produced the flow (``ortools``, ``warm``, ``ortools after warm``).
+    """
     cd, qd, td = scaling.cost_decimals, scaling.quantity_decimals, scaling.cost_decimals + scaling.quantity_decimals
     values = {
         "kind": key.kind,
@@ -118,6 +128,8 @@ def insert_run(
         "nodes": inst.n_nodes if inst is not None else None,
         "arcs": inst.n_arcs if inst is not None else None,
         "version": __version__,
+        "scenario": key.scenario_id,
+        "engine": engine,
     }
     cert = outcome.certificate
     if cert is not None:
@@ -138,10 +150,10 @@ def insert_run(
             "input_fingerprint, status, message, finished_at, cost_decimals, quantity_decimals, "
             "solver_seconds, total_seconds, primal_cost, dual_objective, duality_gap, "
             "max_conservation_violation, max_bound_violation, min_reduced_cost, certificate_ok, "
-            "shortage_units, spare_units, node_count, arc_count, planner_version) VALUES "
+            "shortage_units, spare_units, node_count, arc_count, planner_version, scenario_id, engine) VALUES "
             "(:kind, :period_id, :first, :last, :batch, :fp, :status, :message, clock_timestamp(), "
             ":cd, :qd, :solver, :total, :primal, :dual, :gap, :cons, :bound, :minrc, :ok, "
-            ":short, :spare, :nodes, :arcs, :version) RETURNING id"
+            ":short, :spare, :nodes, :arcs, :version, :scenario, :engine) RETURNING id"
         ),
         values,
     ).one()

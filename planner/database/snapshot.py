@@ -14,6 +14,7 @@ from dataclasses import dataclass
 import numpy as np
 from sqlalchemy import Connection, text
 
+from planner.core.edits import WeekNames
 from planner.core.week import INT64_MAX, NONE, SiteKind, WeekData
 from planner.errors import PlannerError
 
@@ -419,6 +420,15 @@ def _read_rates(conn: Connection, params: dict, lanes: dict[str, np.ndarray] | N
         registry = read_lanes(conn)
         at = np.searchsorted(registry["id"], rates["lane_id"])
     return rates, registry, at
+
+
+def snapshot_names(conn: Connection, snap: Snapshot) -> WeekNames:
+    """Site codes, lane modes and site regions of a snapshot, for resolving what-if edits."""
+    rows = fetch_columns(conn, "SELECT site_id, region FROM site_version WHERE batch_id = %(b)s",
+                         {"b": snap.batch_id}, ints=["site_id"], texts=["region"], order_by="site_id")
+    region = np.full(snap.site_id.shape[0], None, dtype=object)
+    region[np.searchsorted(snap.site_id, rows["site_id"])] = rows["region"]
+    return WeekNames(snap.site_code, snap.lane_mode, region)
 
 
 def loaded_periods(conn: Connection) -> list[str]:

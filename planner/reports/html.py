@@ -34,7 +34,7 @@ from planner.reports.queries import (
 )
 from planner.reports.sections import SECTIONS, Section, cell_text
 
-__all__ = ["render_week_report", "write_week_report"]
+__all__ = ["render_comparison", "render_week_report", "write_week_report"]
 
 #: How many of the biggest movers get a price chart.
 PRICE_CHARTS = 3
@@ -253,3 +253,53 @@ def write_week_report(
     if not report.empty:
         Path(path).write_text(render_week_report(engine, report), encoding="utf-8")
     return report
+
+
+#: The comparison's sections: title, columns (name -> heading), numeric columns (name -> decimals).
+_COMPARISON = {
+    "cost": ("Lane cost by echelon and mode",
+             {"echelon": "echelon", "mode": "mode", "cost_a": "cost a", "cost_b": "cost b", "difference": "difference"},
+             {"cost_a": 2, "cost_b": 2, "difference": 2}),
+    "prices": ("Site prices, largest moves first",
+               {"site": "site", "kind": "kind", "price_a": "price a", "low_a": "low a", "high_a": "high a",
+                "price_b": "price b", "low_b": "low b", "high_b": "high b", "difference": "moved",
+                "determined": "determined"},
+               {c: 2 for c in ("price_a", "low_a", "high_a", "price_b", "low_b", "high_b", "difference")}),
+    "flows": ("Lanes whose flow changed", {"lane": "lane", "flow_a": "flow a", "flow_b": "flow b",
+                                          "difference": "change"}, {"flow_a": 0, "flow_b": 0, "difference": 0}),
+    "binding": ("Limits that became or stopped binding",
+                {"limit_kind": "limit", "label": "what", "value_a": "value a", "value_b": "value b", "change": "change"},
+                {"value_a": 2, "value_b": 2}),
+}
+
+
+def render_comparison(comparison, *, rows: int = 25) -> str:
+    """Two runs compared, as one self-contained HTML page (the first ``rows`` rows of each table).
+
+    ``comparison`` is a :class:`planner.reports.compare.Comparison`. A price
+    move marked *determined* is forced by the data (unique prices, or ranges
+    that do not overlap); the others may be an artefact of degeneracy.
+    """
+    a, b = comparison.run_a, comparison.run_b
+    title = f"Run {b['run_id']} ({b['label']}) compared with run {a['run_id']} ({a['label']})"
+    parts = [
+        f'<h1 style="font-size: 24px; margin: 0 0 4px 0;">{escape(title)}</h1>',
+        f'<p style="{_NOTE}">' + "<br>".join(escape(line) for line in comparison.headline().splitlines()) + "</p>",
+        f'<p style="{_NOTE}">A price move is determined when both prices are unique or their ranges do not '
+        "overlap; otherwise another optimal set of prices could show no move.</p>",
+    ]
+    for name, (heading, columns, numeric) in _COMPARISON.items():
+        frame = comparison.section(name)
+        body = (_table(frame.head(rows), columns, numeric) if not frame.empty
+                else f'<p style="{_NOTE}">Nothing changed.</p>')
+        if len(frame) > rows:
+            body += f'<p style="{_NOTE}">{len(frame) - rows} more rows: planner compare --format csv</p>'
+        parts.append(_section(heading, body))
+    body = "\n".join(parts)
+    return (
+        "<!DOCTYPE html>\n"
+        '<html lang="en"><head><meta charset="utf-8">'
+        '<meta name="viewport" content="width=device-width, initial-scale=1">'
+        f"<title>{escape(title)}</title></head>"
+        f'<body style="{_FONT} margin: 24px; max-width: 1100px;">\n{body}\n</body></html>\n'
+    )

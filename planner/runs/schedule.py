@@ -206,7 +206,7 @@ def is_stale(conn: Connection, period: str, scaling: Scaling) -> tuple[bool, str
     settled = conn.execute(
         text(
             "SELECT r.id, r.status, r.message FROM solve_run r JOIN period p ON p.id = r.period_id "
-            "WHERE p.code = :period AND r.kind = 'week' AND r.input_fingerprint = :fp "
+            "WHERE p.code = :period AND r.kind = 'week' AND r.scenario_id IS NULL AND r.input_fingerprint = :fp "
             "AND (r.status IN ('infeasible', 'unbounded') OR (r.status = 'failed' AND r.planner_version = :version)) "
             "AND (CAST(:since AS timestamptz) IS NULL OR r.finished_at > :since) "
             "ORDER BY r.finished_at DESC, r.id DESC LIMIT 1"

@@ -181,20 +181,29 @@ def solve_period(engine: Engine, period: str, scaling: Scaling = Scaling(), *, c
 def store_and_summarise(
     engine: Engine, key: RunKey, scaling: Scaling, inst, outcome: Outcome, start: float, *,
     label: str, periods, site_ids, lane_ids, site_kind, lane_present=None,
+    engine_name: str | None = None, also_store=None,
 ) -> RunSummary:
-    """Store a run (row, flows, prices, stock) in one transaction and summarise it."""
+    """Store a run (row, flows, prices, stock) in one transaction and summarise it.
+
+    ``engine_name`` is recorded as the run's engine (default: the outcome's own,
+    :attr:`planner.core.optimize.Outcome.engine`); ``also_store(conn, run_id)``,
+    when given, writes more rows of the run in the same transaction.
+    """
     t_solve = time.perf_counter()
     if outcome.ok:
         with engine.begin() as conn:
             ensure_partitions(conn, periods)
     with engine.begin() as conn:
-        run_id = insert_run(conn, key, scaling, inst, outcome, t_solve - start)
+        run_id = insert_run(conn, key, scaling, inst, outcome, t_solve - start,
+                            engine=(engine_name or outcome.engine) if inst is not None else None)
         if outcome.ok:
             store_results(
                 conn, run_id, inst, outcome, scaling,
                 periods=periods, site_ids=site_ids, lane_ids=lane_ids,
                 site_kind=site_kind, lane_present=lane_present,
             )
+        if also_store is not None:
+            also_store(conn, run_id)
         t_store = time.perf_counter()
         conn.execute(
             text("UPDATE solve_run SET total_seconds = :s WHERE id = :id"),
@@ -222,7 +231,7 @@ def store_and_summarise(
             "store": t_store - t_solve,
             "total": t_store - start,
         },
-        engine=outcome.engine,
+        engine=engine_name or outcome.engine,
     )
 
 
@@ -305,7 +314,8 @@ def run_certificate(engine: Engine, *, period: str | None = None, run_id: int | 
                 "SELECT r.*, p.code AS period_code FROM solve_run r "
                 "LEFT JOIN period p ON p.id = r.period_id "
                 "WHERE (CAST(:run AS bigint) IS NULL OR r.id = :run) "
-                "AND (CAST(:period AS text) IS NULL OR p.code = :period) "
+                # a week's certificate is its plan's: scenario runs answer by id only
+                "AND (CAST(:period AS text) IS NULL OR (p.code = :period AND r.scenario_id IS NULL)) "
                 "ORDER BY r.finished_at DESC, r.id DESC LIMIT 1"
             ),
             {"run": run_id, "period": period},

@@ -1,0 +1,450 @@
+"""What-if scenarios: a base week plus edits, stored, solved into runs of their own.
+
+``create_scenario`` checks the edits against the base week's current snapshot
+(unknown sites or lanes, invalid figures, limits no plan can meet) and stores
+the scenario and its edits in one transaction; nothing is written when any
+edit is wrong. ``solve_scenario`` reads the base week's current snapshot,
+applies the edits to its arrays (:mod:`planner.core.edits`; the snapshot rows
+are never changed), solves warm from the base week's latest optimal run where
+the arc layout allows (:func:`planner.core.engines.solve_with`; the
+certificate decides, OR-Tools otherwise) and stores an ordinary week run tagged
+with the scenario, pinned so that retention keeps it. ``latest_week_run``,
+the week views and ``planner resolve`` never see scenario runs.
+
+Edit files are CSV (header ``action,target,value``) or TOML (``[[edit]]``
+tables with ``action``, ``target`` and ``value`` keys).
+"""
+
+from __future__ import annotations
+
+import csv
+import hashlib
+import io
+import time
+from dataclasses import dataclass
+from decimal import Decimal, InvalidOperation
+from pathlib import Path
+
+import numpy as np
+from sqlalchemy import Connection, Engine, text
+from sqlalchemy.exc import IntegrityError
+
+from planner.core.diagnose import find_unbounded_cycle
+from planner.core.edits import ACTIONS, Edit, WeekNames, apply_edits, parse_edit
+from planner.core.engines import COLD, solve_with, state_of
+from planner.core.network import assemble_instance
+from planner.core.optimize import FAILED, Outcome, analyse_flow, optimize
+from planner.core.paths import PathError
+from planner.core.residual import DualError
+from planner.core.solve import OPTIMAL
+from planner.core.week import NONE
+from planner.database.reopen import reopen_week
+from planner.database.results import NULL, RunKey, copy_text_rows, decimal_text, to_decimal
+from planner.database.snapshot import Scaling, current_batch, read_snapshot, run_fingerprint, snapshot_names
+from planner.errors import PlannerError, Problem, ValidationError
+from planner.runs.weekly import RunSummary, store_and_summarise
+
+__all__ = ["ScenarioRun", "SweepPiece", "create_scenario", "list_scenarios", "read_edit_file", "scenario_details",
+           "scenario_runs", "solve_scenario", "sweep_rate"]
+
+_COLUMNS = ("action", "target", "value")
+
+
+@dataclass(frozen=True)
+class ScenarioRun:
+    """A solved scenario: its run, the engine that produced it, and what to know about its base."""
+
+    scenario: str
+    summary: RunSummary
+    engine: str | None
+    base_run_id: int | None
+    note: str
+
+
+def read_edit_file(path: Path) -> list[Edit]:
+    """The edits of a CSV (``action,target,value``) or TOML (``[[edit]]``) file, in order.
+
+    Raises
+    ------
+    ValidationError
+        Naming file, line, column and value of a missing column, an unknown
+        action or an edit without its value.
+    """
+    name = str(path)
+    try:
+        raw = Path(path).read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as err:
+        raise ValidationError([Problem(name, None, None, None, f"cannot read the edit file: {err}")]) from None
+    if Path(path).suffix.lower() == ".toml":
+        return _toml_edits(name, raw)
+    reader = csv.DictReader(io.StringIO(raw))
+    missing = [c for c in ("action", "target") if c not in (reader.fieldnames or [])]
+    if missing:
+        raise ValidationError([Problem(name, 1, c, None, "missing column; the header is action,target,value")
+                               for c in missing])
+    edits, problems = [], []
+    for line, row in enumerate(reader, start=2):
+        edit = Edit((row.get("action") or "").strip(), (row.get("target") or "").strip(),
+                    (row.get("value") or "").strip(), name, line)
+        problems += _shape_problems(edit)
+        edits.append(edit)
+    if problems:
+        raise ValidationError(problems)
+    return edits
+
+
+def _toml_edits(name: str, raw: str) -> list[Edit]:
+    import tomllib
+
+    try:
+        data = tomllib.loads(raw)
+    except tomllib.TOMLDecodeError as err:
+        raise ValidationError([Problem(name, None, None, None, f"not valid TOML: {err}")]) from None
+    tables = data.get("edit")
+    if not isinstance(tables, list):
+        raise ValidationError([Problem(name, None, "edit", None, "no [[edit]] tables with action, target, value")])
+    # tomllib keeps no line numbers: each [[edit]] header starts a table, in order.
+    lines = raw.splitlines()
+    headers = [i + 1 for i, line in enumerate(lines) if line.strip().replace(" ", "") == "[[edit]]"]
+    edits, problems = [], []
+    for k, table in enumerate(tables):
+        start = headers[k] if k < len(headers) else 1
+        end = headers[k + 1] if k + 1 < len(headers) else len(lines) + 1
+
+        def line_of(key: str) -> int:
+            return next((i + 1 for i in range(start, end - 1) if lines[i].split("=")[0].strip() == key), start)
+
+        edit = Edit(str(table.get("action", "")).strip(), str(table.get("target", "")).strip(),
+                    str(table.get("value", "")).strip(), name, line_of("target"), value_line=line_of("value"))
+        problems += _shape_problems(edit, action_line=line_of("action"))
+        edits.append(edit)
+    if problems:
+        raise ValidationError(problems)
+    return edits
+
+
+def _shape_problems(edit: Edit, action_line: int | None = None) -> list[Problem]:
+    if edit.action not in ACTIONS:
+        return [Problem(edit.source, action_line or edit.line, "action", edit.action,
+                        "unknown edit; use one of " + ", ".join(ACTIONS))]
+    if not edit.target:
+        return [Problem(edit.source, edit.line, "target", "", f"{edit.action} needs a target")]
+    if ACTIONS[edit.action] and not edit.value:
+        return [Problem(edit.source, edit.value_line or edit.line, "value", "", f"{edit.action} needs a value")]
+    return []
+
+
+def command_line_edits(words: list[str]) -> list[Edit]:
+    """Edits given as ``--edit`` strings; the n-th is reported as ``--edit:n``."""
+    return [parse_edit(w, source="--edit", line=n) for n, w in enumerate(words, start=1)]
+
+
+def _change_of(edit: Edit) -> str | None:
+    if not ACTIONS.get(edit.action):
+        return None
+    if edit.value.lower() == "none":
+        return "remove"
+    return "percent" if edit.value.endswith("%") else "set"
+
+
+def create_scenario(
+    engine: Engine, name: str, base: str, edits: list[Edit], *, description: str | None = None,
+    scaling: Scaling = Scaling(),
+) -> int:
+    """Check ``edits`` against the current snapshot of week ``base`` and store the scenario.
+
+    Returns
+    -------
+    int
+        The scenario's id.
+
+    Raises
+    ------
+    ValidationError
+        When an edit is wrong (file, line, column, value); nothing is stored.
+    PlannerError
+        When the name is taken or the week has no snapshot.
+    """
+    if not name.strip():
+        raise PlannerError("a scenario needs a name")
+    with engine.connect() as conn:
+        period_id, batch_id, _ = current_batch(conn, base)
+        snap = read_snapshot(conn, base, scaling, batch_id=batch_id)
+        names = snapshot_names(conn, snap)
+    apply_edits(snap.week, names, edits,
+                cost_decimals=scaling.cost_decimals, quantity_decimals=scaling.quantity_decimals)
+    try:
+        with engine.begin() as conn:
+            scenario_id = conn.execute(
+                text("INSERT INTO scenario (name, description, period_id, batch_id, cost_decimals, quantity_decimals) "
+                     "VALUES (:n, :d, :p, :b, :cd, :qd) RETURNING id"),
+                {"n": name, "d": description, "p": period_id, "b": batch_id,
+                 "cd": scaling.cost_decimals, "qd": scaling.quantity_decimals},
+            ).scalar_one()
+            if edits:
+                conn.execute(
+                    text("INSERT INTO scenario_edit (scenario_id, position, action, target, value, change, source, "
+                         "source_line) VALUES (:s, :pos, :a, :t, :v, :c, :src, :line)"),
+                    [{"s": scenario_id, "pos": k, "a": e.action, "t": e.target, "v": e.value, "c": _change_of(e),
+                      "src": e.source, "line": e.line} for k, e in enumerate(edits, start=1)],
+                )
+    except IntegrityError:
+        raise PlannerError(f"a scenario named {name!r} exists already; choose another name") from None
+    return int(scenario_id)
+
+
+def _scenario(conn: Connection, name: str):
+    row = conn.execute(
+        text("SELECT s.*, p.code AS period FROM scenario s JOIN period p ON p.id = s.period_id WHERE s.name = :n"),
+        {"n": name},
+    ).mappings().first()
+    if row is None:
+        raise PlannerError(f"no scenario named {name!r}; list them with `planner scenario list`")
+    edits = [
+        Edit(r.action, r.target, r.value, r.source, r.source_line)
+        for r in conn.execute(
+            text("SELECT * FROM scenario_edit WHERE scenario_id = :s ORDER BY position"), {"s": row["id"]}
+        )
+    ]
+    return row, edits
+
+
+def _lane_ids_of_added(conn: Connection, snap, names: WeekNames, week) -> np.ndarray:
+    """Database ids of the scenario's lanes: the snapshot's, then the added ones (registered as lanes)."""
+    n_base = snap.lane_id.shape[0]
+    if week.n_lanes == n_base:
+        return snap.lane_id
+    rows = [{"o": int(snap.site_id[week.lane_origin[k]]), "d": int(snap.site_id[week.lane_destination[k]]),
+             "m": str(names.lane_mode[k])} for k in range(n_base, week.n_lanes)]
+    # Registering a lane pair changes no snapshot: a week's lanes are its lane_rate rows.
+    conn.execute(text("INSERT INTO lane (origin_id, destination_id, mode) VALUES (:o, :d, :m) "
+                      "ON CONFLICT DO NOTHING"), rows)
+    added = [conn.execute(text("SELECT id FROM lane WHERE origin_id = :o AND destination_id = :d AND mode = :m"),
+                          r).scalar_one() for r in rows]
+    conn.commit()
+    return np.concatenate([snap.lane_id, np.array(added, np.int64)])
+
+
+def _solve_edited(inst, state, site_codes, lane_labels, period: str) -> tuple[Outcome, str]:
+    """Warm where the state fits and the certificate holds, OR-Tools otherwise; infeasible weeks diagnosed cold."""
+    try:
+        if find_unbounded_cycle(inst) is None:
+            sol, engine_name = solve_with(inst, state)
+            if sol.status == OPTIMAL:
+                return analyse_flow(inst, sol.flow, solver_seconds=sol.solver_seconds), engine_name
+    except (DualError, PathError) as err:
+        return Outcome(FAILED, f"the flow could not be proved optimal: {err}"), COLD
+    except PlannerError as err:
+        return Outcome(FAILED, str(err)), COLD
+    return optimize(inst, site_codes=site_codes, lane_labels=lane_labels, period_codes=[period]), COLD
+
+
+def solve_scenario(engine: Engine, name: str, *, warm: bool = True) -> ScenarioRun:
+    """Solve scenario ``name`` on its base week's current snapshot and store the run.
+
+    Returns
+    -------
+    ScenarioRun
+        The run's summary, the engine that produced it, the base run it was
+        started from, and a note when the base week was reloaded since the
+        scenario was made or last solved.
+
+    Raises
+    ------
+    PlannerError
+        When there is no such scenario, or its edits no longer fit the reloaded base week.
+    """
+    start = time.perf_counter()
+    with engine.connect() as conn:
+        sc, edits = _scenario(conn, name)
+        period = sc["period"]
+        scaling = Scaling(sc["cost_decimals"], sc["quantity_decimals"])
+        period_id, batch_id, snapshot_fp = current_batch(conn, period)
+        note = _base_note(conn, sc, batch_id)
+        snap = read_snapshot(conn, period, scaling, batch_id=batch_id)
+        names = snapshot_names(conn, snap)
+        week, names = apply_edits(snap.week, names, edits, cost_decimals=scaling.cost_decimals,
+                                  quantity_decimals=scaling.quantity_decimals)
+        base = _base_run(conn, snap, scaling) if warm else None
+        lane_ids = _lane_ids_of_added(conn, snap, names, week)
+    inst = assemble_instance(week, cost_scale=scaling.cost_scale, quantity_scale=scaling.quantity_scale)
+    state = state_of(base.instance, base.flow) if base is not None else None
+    outcome, engine_name = _solve_edited(inst, state, snap.site_code, names.lane_keys(week), period)
+    fingerprint = hashlib.sha256(
+        (run_fingerprint(snapshot_fp, scaling) + "|" + "\n".join(e.text() for e in edits)).encode()
+    ).hexdigest()
+    key = RunKey("week", period_id, period_id, period_id, batch_id, fingerprint, scenario_id=int(sc["id"]))
+
+    def also_store(conn: Connection, run_id: int) -> None:
+        conn.execute(text("INSERT INTO run_pin (run_id, note) VALUES (:r, :n)"), {"r": run_id, "n": f"scenario {name}"})
+        _store_lane_edits(conn, run_id, snap.week, week, lane_ids, scaling)
+
+    summary = store_and_summarise(
+        engine, key, scaling, inst, outcome, start, label=f"{period} {name}", periods=[period],
+        site_ids=snap.site_id, lane_ids=lane_ids, site_kind=week.site_kind,
+        engine_name=engine_name, also_store=also_store,
+    )
+    return ScenarioRun(name, summary, engine_name if outcome.ok else None,
+                       None if base is None else base.run_id, note)
+
+
+def _base_note(conn: Connection, sc, batch_id: int) -> str:
+    last = conn.execute(
+        text("SELECT id, batch_id FROM solve_run WHERE scenario_id = :s ORDER BY id DESC LIMIT 1"), {"s": sc["id"]}
+    ).first()
+    if last is not None and last.batch_id != batch_id:
+        return (f"the base week {sc['period']} was reloaded since run {last.id} of this scenario "
+                f"(batch {last.batch_id} then, {batch_id} now)")
+    if last is None and sc["batch_id"] != batch_id:
+        return (f"the base week {sc['period']} was reloaded since the scenario was made "
+                f"(batch {sc['batch_id']} then, {batch_id} now)")
+    return ""
+
+
+def _base_run(conn: Connection, snap, scaling: Scaling):
+    """The base week's latest optimal run, when it was solved on this snapshot (``snap``) at this precision."""
+    period, batch_id = snap.period, snap.batch_id
+    row = conn.execute(
+        text("SELECT r.id FROM latest_week_run lw JOIN solve_run r ON r.id = lw.run_id WHERE lw.period = :p "
+             "AND r.batch_id = :b AND r.cost_decimals = :cd AND r.quantity_decimals = :qd"),
+        {"p": period, "b": batch_id, "cd": scaling.cost_decimals, "qd": scaling.quantity_decimals},
+    ).first()
+    return None if row is None else reopen_week(conn, period, int(row[0]), snapshot=snap)
+
+
+def _store_lane_edits(conn: Connection, run_id: int, base, week, lane_ids: np.ndarray, scaling: Scaling) -> None:
+    """The lane figures of the run that differ from the base snapshot (edited and added lanes)."""
+    n = base.n_lanes
+    changed = np.ones(week.n_lanes, bool)
+    changed[:n] = ((week.lane_cost[:n] != base.lane_cost) | (week.lane_capacity[:n] != base.lane_capacity)
+                   | (week.lane_min[:n] != base.lane_min))
+    rows = np.flatnonzero(changed)
+    if rows.shape[0] == 0:
+        return
+    capacity = np.array(decimal_text(week.lane_capacity[rows], scaling.quantity_decimals), dtype=object)
+    capacity[week.lane_capacity[rows] == NONE] = NULL
+    copy_text_rows(conn, "run_lane_edit", ["run_id", "lane_id", "unit_cost", "capacity", "min_quantity"], [
+        [str(run_id)] * rows.shape[0],
+        list(map(str, lane_ids[rows].tolist())),
+        decimal_text(week.lane_cost[rows], scaling.cost_decimals),
+        capacity.tolist(),
+        decimal_text(week.lane_min[rows], scaling.quantity_decimals),
+    ])
+
+
+def list_scenarios(engine: Engine) -> list[dict]:
+    """Every scenario with its base week, edits, who made it, and its latest run."""
+    with engine.connect() as conn:
+        rows = conn.execute(text(
+            "SELECT s.name, p.code AS base, s.description, s.created_by, s.created_at, "
+            "(SELECT count(*) FROM scenario_edit e WHERE e.scenario_id = s.id) AS edits, "
+            "r.id AS run_id, r.status, r.primal_cost AS cost, r.engine "
+            "FROM scenario s JOIN period p ON p.id = s.period_id "
+            "LEFT JOIN LATERAL (SELECT * FROM solve_run sr WHERE sr.scenario_id = s.id "
+            "ORDER BY sr.id DESC LIMIT 1) r ON true ORDER BY s.name"
+        )).mappings()
+        return [dict(r) for r in rows]
+
+
+def scenario_details(engine: Engine, name: str) -> tuple[dict, list[Edit], list[dict]]:
+    """A scenario's row (with its base week), its edits in order, and its runs (newest first).
+
+    Raises
+    ------
+    PlannerError
+        When there is no such scenario.
+    """
+    with engine.connect() as conn:
+        sc, edits = _scenario(conn, name)
+        runs = conn.execute(text(
+            "SELECT r.id AS run_id, r.status, r.primal_cost AS cost, r.engine, r.batch_id, r.finished_at "
+            "FROM solve_run r WHERE r.scenario_id = :s ORDER BY r.id DESC"), {"s": sc["id"]}).mappings()
+        return dict(sc), edits, [dict(r) for r in runs]
+
+
+def scenario_runs(engine: Engine, name: str) -> tuple[int, int]:
+    """``(base run, scenario run)``: the scenario's latest optimal run and the base week's latest optimal run.
+
+    Raises
+    ------
+    PlannerError
+        When the scenario has no optimal run or its base week none.
+    """
+    with engine.connect() as conn:
+        sc, _ = _scenario(conn, name)
+        run = conn.execute(text("SELECT id FROM solve_run WHERE scenario_id = :s AND status = 'optimal' "
+                                "ORDER BY id DESC LIMIT 1"), {"s": sc["id"]}).scalar()
+        base = conn.execute(text("SELECT run_id FROM latest_week_run WHERE period_id = :p"),
+                            {"p": sc["period_id"]}).scalar()
+    if run is None:
+        raise PlannerError(f"scenario {name!r} has no optimal run; solve it with `planner scenario solve {name}`")
+    if base is None:
+        raise PlannerError(f"the base week {sc['period']} has no optimal run; solve it with `planner solve`")
+    return int(base), int(run)
+
+
+@dataclass(frozen=True)
+class SweepPiece:
+    """One piece of a sweep in currency and units: the same plan is optimal from ``rate_from`` to ``rate_to``."""
+
+    rate_from: Decimal
+    rate_to: Decimal
+    flow: Decimal
+    cost_from: Decimal
+    cost_to: Decimal
+    engine: str
+
+
+def sweep_rate(
+    engine: Engine, lane: str, rate_from: str, rate_to: str, *, period: str | None = None,
+    scenario: str | None = None, scaling: Scaling = Scaling(),
+) -> list[SweepPiece]:
+    """Exact pieces of the optimal cost of a week (or a scenario) as one lane's rate goes from one figure to another.
+
+    Parameters
+    ----------
+    lane : str
+        ``O->D`` or ``O->D MODE``.
+    rate_from, rate_to : str
+        Decimal figures at the precision of the week (or of the scenario).
+    period, scenario : str
+        The week, or a scenario (its base week with its edits applied).
+
+    Raises
+    ------
+    PlannerError
+        For an unknown lane or week, figures beyond the precision, or a week without a plan at some rate.
+    """
+    from planner.core.sweep import rate_sweep
+
+    if (period is None) == (scenario is None):
+        raise PlannerError("give --period P or --scenario NAME")
+    with engine.connect() as conn:
+        edits: list[Edit] = []
+        if scenario is not None:
+            sc, edits = _scenario(conn, scenario)
+            period, scaling = sc["period"], Scaling(sc["cost_decimals"], sc["quantity_decimals"])
+        snap = read_snapshot(conn, period, scaling)
+        names = snapshot_names(conn, snap)
+    week, names = apply_edits(snap.week, names, edits,
+                              cost_decimals=scaling.cost_decimals, quantity_decimals=scaling.quantity_decimals)
+    found = np.flatnonzero(names.lane_keys(week) == " ".join(lane.split()))
+    if found.shape[0] != 1:
+        raise PlannerError(f"no lane {lane!r} in {period}; name it as ORIGIN->DESTINATION MODE")
+    low, high = (_scaled_rate(v, scaling) for v in (rate_from, rate_to))
+    pieces = rate_sweep(week, int(found[0]), low, high, cost_scale=scaling.cost_scale,
+                        quantity_scale=scaling.quantity_scale)
+    cd, qd = scaling.cost_decimals, scaling.quantity_decimals
+    return [SweepPiece(to_decimal(p.start, cd), to_decimal(p.end, cd), to_decimal(p.flow, qd),
+                       to_decimal(p.cost_at_start, cd + qd), to_decimal(p.cost_at(p.end), cd + qd), p.engine)
+            for p in pieces]
+
+
+def _scaled_rate(value: str, scaling: Scaling) -> int:
+    try:
+        scaled = Decimal(value).scaleb(scaling.cost_decimals)
+    except InvalidOperation:
+        raise PlannerError(f"rate {value!r} is not a number") from None
+    if scaled != scaled.to_integral_value():
+        raise PlannerError(f"rate {value!r} has more than {scaling.cost_decimals} decimals")
+    return int(scaled)
