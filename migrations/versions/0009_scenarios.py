@@ -70,17 +70,18 @@ LANGUAGE sql STABLE SECURITY DEFINER SET search_path FROM CURRENT AS $$
     SELECT e.lane_id, e.unit_cost, e.capacity, e.min_quantity FROM run_lane_edit e WHERE e.run_id = run
 $$"""
 
-# Cost of the lanes by echelon (origin kind -> destination kind) and mode.
-# The lane figures of each run are read once (a function call per flow row would read them per row).
+# Only the lanes that carry flow are costed: each one's rate is a primary-key
+# probe of the run's snapshot, or its scenario edit (edited and added lanes).
 _RUN_LANE_COST = """
-    SELECT {tag} AS side, ov.kind || '->' || dv.kind AS echelon, l.mode, sum(f.flow * lr.unit_cost) AS cost
+    SELECT {tag} AS side, ov.kind || '->' || dv.kind AS echelon, l.mode,
+           sum(f.flow * coalesce(e.unit_cost, lr.unit_cost)) AS cost
     FROM run_flow f
-    JOIN {rates} lr ON lr.lane_id = f.lane_id
+    JOIN solve_run sr ON sr.id = {run}
+    LEFT JOIN run_lane_edit e ON e.run_id = {run} AND e.lane_id = f.lane_id
+    LEFT JOIN lane_rate lr ON lr.batch_id = sr.batch_id AND lr.period_id = sr.period_id AND lr.lane_id = f.lane_id
     JOIN lane l ON l.id = f.lane_id
-    LEFT JOIN site_version ov ON ov.batch_id = (SELECT batch_id FROM solve_run WHERE id = {run})
-         AND ov.site_id = l.origin_id
-    LEFT JOIN site_version dv ON dv.batch_id = (SELECT batch_id FROM solve_run WHERE id = {run})
-         AND dv.site_id = l.destination_id
+    LEFT JOIN site_version ov ON ov.batch_id = sr.batch_id AND ov.site_id = l.origin_id
+    LEFT JOIN site_version dv ON dv.batch_id = sr.batch_id AND dv.site_id = l.destination_id
     WHERE f.run_id = {run}
       AND f.period = (SELECT p.code FROM solve_run sr JOIN period p ON p.id = sr.period_id WHERE sr.id = {run})
     GROUP BY 1, 2, 3"""
@@ -90,10 +91,8 @@ COMPARE_COST = f"""
 CREATE FUNCTION compare_cost(a bigint, b bigint)
 RETURNS TABLE (echelon text, mode text, cost_a numeric, cost_b numeric, difference numeric)
 LANGUAGE sql STABLE SECURITY DEFINER SET search_path FROM CURRENT AS $$
-    WITH rates_a AS MATERIALIZED (SELECT * FROM run_lane_rate(a)),
-    rates_b AS MATERIALIZED (SELECT * FROM run_lane_rate(b)),
-    lane_cost AS ({_RUN_LANE_COST.format(tag="'a'", rates="rates_a", run="a")}
-    UNION ALL{_RUN_LANE_COST.format(tag="'b'", rates="rates_b", run="b")}
+    WITH lane_cost AS ({_RUN_LANE_COST.format(tag="'a'", run="a")}
+    UNION ALL{_RUN_LANE_COST.format(tag="'b'", run="b")}
     )
     SELECT coalesce(x.echelon, y.echelon), coalesce(x.mode, y.mode),
            coalesce(x.cost, 0), coalesce(y.cost, 0), coalesce(y.cost, 0) - coalesce(x.cost, 0)
