@@ -39,7 +39,7 @@ def solve(
     last: Optional[str] = typer.Option(None, "--to", metavar="WEEK", help="Last ISO week of a range."),
     horizon: Optional[str] = typer.Option(None, "--horizon", metavar="FIRST..LAST", help="Solve these weeks as one linked horizon with stock, e.g. 2026-W45..2026-W52."),
     workers: Optional[int] = typer.Option(None, "--workers", min=1, metavar="N", help="Worker processes for several weeks (default: CPU cores)."),
-    cold: bool = typer.Option(False, "--cold", help="Solve every week from scratch with OR-Tools, not warm from the week before."),
+    warm: bool = typer.Option(False, "--warm", help="Start each week warm from the week solved before it (kept only when certified)."),
     cost_decimals: int = COST_DECIMALS,
     quantity_decimals: int = QUANTITY_DECIMALS,
     database_url: Optional[str] = DATABASE_URL,
@@ -72,10 +72,10 @@ def solve(
         chosen = select_periods(db_engine, period=period, all_periods=all_periods, first=first, last=last)
     except ValueError as err:
         raise PlannerError(str(err)) from err
-    _solve_weeks(url, chosen, scaling, workers, currency(db_engine), warm=not cold)
+    _solve_weeks(url, chosen, scaling, workers, currency(db_engine), warm=warm)
 
 
-def _solve_weeks(url: str, chosen: list[str], scaling, workers: Optional[int], code: str, *, warm: bool = True) -> None:
+def _solve_weeks(url: str, chosen: list[str], scaling, workers: Optional[int], code: str, *, warm: bool = False) -> None:
     """Solve ``chosen`` weeks in parallel with a progress bar; print a summary.
 
     Exits 3 when the database could not be reached or the connection was lost

@@ -115,14 +115,17 @@ def solve_many(
     *,
     workers: int | None = None,
     on_done: Callable[[WeekOutcome], None] | None = None,
-    warm: bool = True,
+    warm: bool = False,
 ) -> list[WeekOutcome]:
     """Solve independent weeks in parallel worker processes.
 
-    Weeks are handed out in calendar order, and with ``warm`` each worker
-    starts each week from the optimum of the week it solved before (a chain:
+    Weeks are handed out in calendar order. With ``warm`` each worker starts
+    each week from the optimum of the week it solved before (a chain:
     consecutive weeks of one network differ by drift); a warm answer is kept
-    only when its certificate holds, else the week is solved cold.
+    only when its certificate holds, else the week is solved cold. Off by
+    default: on weeks whose every rate drifts, the warm engine gives up and the
+    cold solve after it costs more than a cold solve alone
+    (``benchmarks/bench_weeks.py``).
 
     Parameters
     ----------
@@ -135,7 +138,7 @@ def solve_many(
     on_done : callable, optional
         Called in the parent with each week's outcome as it finishes (progress).
     warm : bool
-        Chain the weeks of each worker warm (default); False solves each cold.
+        Chain the weeks of each worker warm; default False (each week cold).
 
     Returns
     -------
