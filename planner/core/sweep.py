@@ -101,4 +101,7 @@ def rate_sweep(week: WeekData, lane: int, start: int, end: int, *, cost_scale: i
         pieces.append(Piece(piece_start, min(last, end), flow, cost - (rate - piece_start) * flow, engine))
         if last >= end:
             return pieces
-        rate, state = last + 1, state_of(inst, solution.flow, potential)
+        # The layout never changes along a sweep: a warm state keeps its node lists.
+        rate = last + 1
+        state = state_of(inst, solution.flow, potential) if state is None else dataclasses.replace(
+            state, cost=inst.cost, flow=solution.flow, potential=potential)
