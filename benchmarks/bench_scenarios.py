@@ -12,7 +12,7 @@
 4. The scenario run is compared with the week's run (``compare_runs``: cost by
    echelon and mode, prices, flows, binding limits): target under 2 s.
 
-    python benchmarks/bench_scenarios.py [--database-url URL] [--lanes 500000]
+    python benchmarks/bench_scenarios.py [--database-url URL] [--lanes 500000] [--keep]
 
 The benchmark creates and drops its own database beside the one the URL names.
 """
@@ -52,6 +52,7 @@ def main() -> None:
     parser.add_argument("--database-url", default=None)
     parser.add_argument("--lanes", type=int, default=500_000)
     parser.add_argument("--edits", type=int, default=100)
+    parser.add_argument("--keep", action="store_true", help="keep the benchmark's database")
     args = parser.parse_args()
 
     server = sa.make_url(db.database_url(args.database_url))
@@ -116,6 +117,8 @@ def main() -> None:
         print(f"load average {os.getloadavg()[0]:.2f}")
     finally:
         engine.dispose()
+        if args.keep:
+            return
         with psycopg.connect(admin_url, autocommit=True) as admin:
             admin.execute(sql.SQL("DROP DATABASE IF EXISTS {} WITH (FORCE)").format(sql.Identifier(BENCH_DATABASE)))
 
