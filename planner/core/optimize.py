@@ -18,6 +18,7 @@ from planner.core.diagnose import (
     diagnose_infeasible,
     find_unbounded_cycle,
 )
+from planner.core.engines import COLD, WarmState, solve_with
 from planner.core.limits import CAPACITY, LimitValues, limit_values
 from planner.core.network import ArcKind, Instance, OverflowError_
 from planner.core.paths import PathError
@@ -56,7 +57,7 @@ class Outcome:
     timings: dict = field(default_factory=dict)
     #: Which engine produced the flow: ``ortools`` (cold), ``warm``, or
     #: ``ortools after warm`` (a warm answer that did not prove itself).
-    engine: str = "ortools"
+    engine: str = COLD
 
     @property
     def ok(self) -> bool:
@@ -69,6 +70,7 @@ def optimize(
     site_codes=None,
     lane_labels=None,
     period_codes=None,
+    warm: WarmState | None = None,
 ) -> Outcome:
     """Solve ``inst`` and derive its prices, ranges, exact values of its limits and certificate.
 
@@ -77,6 +79,11 @@ def optimize(
     inst : Instance
     site_codes, lane_labels, period_codes : sequence of str, optional
         Names used in the messages of bad weeks.
+    warm : WarmState, optional
+        An optimum of a similar week of the same arc layout: the warm engine
+        starts from it (:func:`planner.core.engines.solve_with`). A warm flow
+        counts only when its certificate holds; otherwise the week is solved
+        again cold. ``Outcome.engine`` says which engine produced the flow.
 
     Returns
     -------
@@ -97,19 +104,24 @@ def optimize(
         cycle = find_unbounded_cycle(inst)
         if cycle is not None:
             return Outcome(UNBOUNDED, describe_cycle(inst, cycle, lane_labels=lane_labels))
-        sol = solve_flow(inst)
+        sol, engine = (solve_flow(inst), COLD) if warm is None else solve_with(inst, warm)
     except OverflowError_ as err:
         return Outcome(FAILED, str(err))
     if sol.status == INFEASIBLE:
         diagnosis = diagnose_infeasible(
             inst, site_codes=site_codes, lane_labels=lane_labels, period_codes=period_codes
         )
-        return Outcome(INFEASIBLE, diagnosis.message, solver_seconds=sol.solver_seconds)
+        return Outcome(INFEASIBLE, diagnosis.message, solver_seconds=sol.solver_seconds, engine=engine)
 
     try:
-        return analyse_flow(inst, sol.flow, solver_seconds=sol.solver_seconds)
+        out = analyse_flow(inst, sol.flow, solver_seconds=sol.solver_seconds)
     except (DualError, PathError) as err:
-        return Outcome(FAILED, f"the solver's flow could not be proved optimal: {err}", solver_seconds=sol.solver_seconds)
+        out = Outcome(FAILED, f"the solver's flow could not be proved optimal: {err}", solver_seconds=sol.solver_seconds)
+    if not out.ok and engine != COLD:
+        # A warm flow that does not prove itself is never kept: solve cold.
+        return optimize(inst, site_codes=site_codes, lane_labels=lane_labels, period_codes=period_codes)
+    out.engine = engine
+    return out
 
 
 def analyse_flow(inst: Instance, flow: np.ndarray, *, solver_seconds: float = 0.0) -> Outcome:

@@ -29,14 +29,10 @@ import numpy as np
 from sqlalchemy import Connection, Engine, text
 from sqlalchemy.exc import IntegrityError
 
-from planner.core.diagnose import find_unbounded_cycle
 from planner.core.edits import ACTIONS, Edit, WeekNames, apply_edits, parse_edit
-from planner.core.engines import COLD, solve_with, state_of
+from planner.core.engines import state_of
 from planner.core.network import assemble_instance
-from planner.core.optimize import FAILED, Outcome, analyse_flow, optimize
-from planner.core.paths import PathError
-from planner.core.residual import DualError
-from planner.core.solve import OPTIMAL
+from planner.core.optimize import optimize
 from planner.core.week import NONE
 from planner.database.reopen import reopen_week
 from planner.database.results import NULL, RunKey, copy_text_rows, decimal_text, to_decimal
@@ -225,20 +221,6 @@ def _lane_ids_of_added(conn: Connection, snap, names: WeekNames, week) -> np.nda
     return np.concatenate([snap.lane_id, np.array(added, np.int64)])
 
 
-def _solve_edited(inst, state, site_codes, lane_labels, period: str) -> tuple[Outcome, str]:
-    """Warm where the state fits and the certificate holds, OR-Tools otherwise; infeasible weeks diagnosed cold."""
-    try:
-        if find_unbounded_cycle(inst) is None:
-            sol, engine_name = solve_with(inst, state)
-            if sol.status == OPTIMAL:
-                return analyse_flow(inst, sol.flow, solver_seconds=sol.solver_seconds), engine_name
-    except (DualError, PathError) as err:
-        return Outcome(FAILED, f"the flow could not be proved optimal: {err}"), COLD
-    except PlannerError as err:
-        return Outcome(FAILED, str(err)), COLD
-    return optimize(inst, site_codes=site_codes, lane_labels=lane_labels, period_codes=[period]), COLD
-
-
 def solve_scenario(engine: Engine, name: str, *, warm: bool = True) -> ScenarioRun:
     """Solve scenario ``name`` on its base week's current snapshot and store the run.
 
@@ -269,7 +251,8 @@ def solve_scenario(engine: Engine, name: str, *, warm: bool = True) -> ScenarioR
         lane_ids = _lane_ids_of_added(conn, snap, names, week)
     inst = assemble_instance(week, cost_scale=scaling.cost_scale, quantity_scale=scaling.quantity_scale)
     state = state_of(base.instance, base.flow) if base is not None else None
-    outcome, engine_name = _solve_edited(inst, state, snap.site_code, names.lane_keys(week), period)
+    outcome = optimize(inst, site_codes=snap.site_code, lane_labels=names.lane_keys(week), period_codes=[period],
+                       warm=state)
     fingerprint = hashlib.sha256(
         (run_fingerprint(snapshot_fp, scaling) + "|" + "\n".join(e.text() for e in edits)).encode()
     ).hexdigest()
@@ -282,9 +265,9 @@ def solve_scenario(engine: Engine, name: str, *, warm: bool = True) -> ScenarioR
     summary = store_and_summarise(
         engine, key, scaling, inst, outcome, start, label=f"{period} {name}", periods=[period],
         site_ids=snap.site_id, lane_ids=lane_ids, site_kind=week.site_kind,
-        engine_name=engine_name, also_store=also_store,
+        also_store=also_store,
     )
-    return ScenarioRun(name, summary, engine_name if outcome.ok else None,
+    return ScenarioRun(name, summary, outcome.engine if outcome.ok else None,
                        None if base is None else base.run_id, note)
 
 

@@ -8,7 +8,6 @@ its status and message; it never leaves half a run behind.
 
 from __future__ import annotations
 
-import dataclasses
 import time
 from dataclasses import dataclass
 from decimal import Decimal
@@ -16,11 +15,9 @@ from decimal import Decimal
 import numpy as np
 from sqlalchemy import Engine, text
 
-from planner.core.engines import WarmState, same_layout, solve_with, state_of
+from planner.core.engines import WarmState, state_of
 from planner.core.network import assemble_instance
-from planner.core.optimize import FAILED, OPTIMAL, Outcome, analyse_flow, optimize, shortage_units
-from planner.core.paths import PathError
-from planner.core.residual import DualError
+from planner.core.optimize import FAILED, Outcome, optimize, shortage_units
 from planner.database.history import ensure_partitions
 from planner.database.results import RunKey, insert_run, store_results, to_decimal
 from planner.database.snapshot import (
@@ -80,29 +77,17 @@ def solve_snapshot(snapshot: Snapshot, scaling: Scaling, state: WarmState | None
     """Build and optimise one snapshot (no database): ``(instance, outcome)``.
 
     With ``state`` (an optimum of a similar week of the same arc layout), the
-    warm engine solves first (:func:`planner.core.engines.solve_with`); its
-    flow counts only when its certificate holds, and the prices, ranges and
-    limit values are derived from it exactly as from a cold solve. A week the
-    warm engine cannot solve optimally is solved cold, with the diagnosis of a
-    bad week. ``outcome.engine`` says which engine produced the flow.
+    warm engine solves first; see :func:`planner.core.optimize.optimize`.
     """
     inst = assemble_instance(
         snapshot.week, cost_scale=scaling.cost_scale, quantity_scale=scaling.quantity_scale
     )
-    if state is not None and same_layout(inst, state):
-        solution, engine_name = solve_with(inst, state)
-        if solution.status == OPTIMAL:
-            try:
-                outcome = analyse_flow(inst, solution.flow, solver_seconds=solution.solver_seconds)
-            except (DualError, PathError):
-                outcome = None
-            if outcome is not None and outcome.ok:
-                return inst, dataclasses.replace(outcome, engine=engine_name)
     outcome = optimize(
         inst,
         site_codes=snapshot.site_code,
         lane_labels=_LaneLabels(snapshot),
         period_codes=[snapshot.period],
+        warm=state,
     )
     return inst, outcome
 

@@ -150,6 +150,19 @@ def test_a_flow_that_is_not_optimal_fails(monkeypatch):
     assert out.message.startswith("the solver's flow could not be proved optimal: the residual graph has a")
 
 
+def test_a_warm_flow_that_does_not_prove_itself_is_solved_again_cold(monkeypatch):
+    # The same dear flow, now claimed optimal by the warm engine: it is not kept;
+    # OR-Tools solves the week cold and the outcome says so (cost 60 is the hand optimum above).
+    from planner.core.engines import COLD, WARM, state_of
+
+    inst = assemble_instance(one_week())
+    dear = np.array([8, 8, 0, 0, 8, 2, 0, 0])
+    monkeypatch.setattr(optimize_module, "solve_with", lambda _inst, _state: (FlowSolution(OPTIMAL, dear, 84, 0.5), WARM))
+    out = optimize(inst, warm=state_of(inst, np.array([4, 4, 4, 4, 4, 2, 0, 0])))
+    assert out.ok and out.engine == COLD
+    assert int(inst.cost @ out.flow) == 60
+
+
 def test_a_flow_that_breaks_conservation_fails_its_certificate():
     inst = assemble_instance(one_week())
     out = analyse_flow(inst, np.zeros(8, np.int64), solver_seconds=0.25)
