@@ -39,7 +39,7 @@ from pathlib import Path
 import pandas as pd
 import psycopg
 import sqlalchemy as sa
-from psycopg import sql
+from scratch_database import ScratchDatabase  # benchmarks/, the script's own folder
 
 from planner.database import connect as db
 from planner.database.history import prune
@@ -216,12 +216,8 @@ def main() -> None:
     parser.add_argument("--keep", action="store_true", help="keep the filled database")
     args = parser.parse_args()
 
-    server = sa.make_url(db.database_url(args.database_url))
-    admin_url = server.set(drivername="postgresql").render_as_string(hide_password=False)
-    bench_url = server.set(drivername="postgresql", database=BENCH_DATABASE).render_as_string(hide_password=False)
-    with psycopg.connect(admin_url, autocommit=True) as admin:
-        admin.execute(sql.SQL("DROP DATABASE IF EXISTS {} WITH (FORCE)").format(sql.Identifier(BENCH_DATABASE)))
-        admin.execute(sql.SQL("CREATE DATABASE {}").format(sql.Identifier(BENCH_DATABASE)))
+    scratch = ScratchDatabase(args.database_url, BENCH_DATABASE)
+    bench_url = scratch.create()
     engine = db.get_engine(bench_url)
     try:
         migrate(engine)
@@ -261,8 +257,7 @@ def main() -> None:
     finally:
         engine.dispose()
         if not args.keep:
-            with psycopg.connect(admin_url, autocommit=True) as admin:
-                admin.execute(sql.SQL("DROP DATABASE IF EXISTS {} WITH (FORCE)").format(sql.Identifier(BENCH_DATABASE)))
+            scratch.drop()
 
 
 if __name__ == "__main__":

@@ -28,23 +28,18 @@ import argparse
 import os
 import shutil
 import statistics
-import subprocess
-import sys
 import tempfile
 import time
 from pathlib import Path
 
 import psycopg
-import sqlalchemy as sa
+from process_timing import run_planner  # benchmarks/, the script's own folder
 from psycopg import sql
+from scratch_database import ScratchDatabase
 
 from planner.contract import FILE_ORDER, LANES
-from planner.database import connect as db
 from planner.synthetic.benchmark_network import benchmark_network
 from planner.synthetic.frames import write_folder
-
-sys.path.insert(0, str(Path(__file__).parent))
-from process_timing import run_planner  # noqa: E402
 
 BENCH_DATABASE = "planner_bench_load"
 
@@ -95,14 +90,8 @@ def main() -> None:
     parser.add_argument("--profile", type=Path, default=None, help="folder for a py-spy profile of the first load")
     args = parser.parse_args()
 
-    server = sa.make_url(db.database_url(args.database_url))
-    admin_url = server.set(drivername="postgresql").render_as_string(hide_password=False)
-    bench_url = server.set(drivername="postgresql", database=BENCH_DATABASE).render_as_string(hide_password=False)
-
-    def fresh_database() -> None:
-        with psycopg.connect(admin_url, autocommit=True) as admin:
-            admin.execute(sql.SQL("DROP DATABASE IF EXISTS {} WITH (FORCE)").format(sql.Identifier(BENCH_DATABASE)))
-            admin.execute(sql.SQL("CREATE DATABASE {}").format(sql.Identifier(BENCH_DATABASE)))
+    scratch = ScratchDatabase(args.database_url, BENCH_DATABASE)
+    bench_url = scratch.url
 
     work = Path(tempfile.mkdtemp(prefix="bench_load_"))
     try:
@@ -121,14 +110,8 @@ def main() -> None:
         peaks: dict[str, float] = {}
         last_lines: dict[str, str] = {}
         for attempt in range(args.repeat):
-            fresh_database()
-            with psycopg.connect(bench_url, autocommit=True) as conn:
-                conn.execute("SELECT 1")
-            results["raw COPY"].append(raw_copy(bench_url, first))
-            fresh_database()
-            db_init = subprocess.run([sys.executable, "-m", "planner.cli", "init"], capture_output=True, text=True,
-                                     env=dict(os.environ, PLANNER_DATABASE_URL=bench_url), check=False)
-            assert db_init.returncode == 0, db_init.stderr
+            results["raw COPY"].append(raw_copy(scratch.create(), first))
+            run_planner(scratch.create(), "init")
             profile = args.profile / "load.speedscope.json" if args.profile and attempt == 0 else None
             for label, folder in (("first load", first), ("reload (no-op)", same),
                                   ("load with changed rates", drifted_folder)):
@@ -147,8 +130,7 @@ def main() -> None:
         print(f"load average {os.getloadavg()[0]:.2f}")
     finally:
         shutil.rmtree(work, ignore_errors=True)
-        with psycopg.connect(admin_url, autocommit=True) as admin:
-            admin.execute(sql.SQL("DROP DATABASE IF EXISTS {} WITH (FORCE)").format(sql.Identifier(BENCH_DATABASE)))
+        scratch.drop()
 
 
 if __name__ == "__main__":

@@ -28,9 +28,8 @@ from decimal import Decimal
 from pathlib import Path
 
 import numpy as np
-import psycopg
 import sqlalchemy as sa
-from psycopg import sql
+from scratch_database import ScratchDatabase  # benchmarks/, the script's own folder
 
 from planner.core.network import assemble_instance
 from planner.core.solve import solve_flow
@@ -55,13 +54,8 @@ def main() -> None:
     parser.add_argument("--keep", action="store_true", help="keep the benchmark's database")
     args = parser.parse_args()
 
-    server = sa.make_url(db.database_url(args.database_url))
-    admin_url = server.set(drivername="postgresql").render_as_string(hide_password=False)
-    bench_url = server.set(drivername="postgresql", database=BENCH_DATABASE).render_as_string(hide_password=False)
-    with psycopg.connect(admin_url, autocommit=True) as admin:
-        admin.execute(sql.SQL("DROP DATABASE IF EXISTS {} WITH (FORCE)").format(sql.Identifier(BENCH_DATABASE)))
-        admin.execute(sql.SQL("CREATE DATABASE {}").format(sql.Identifier(BENCH_DATABASE)))
-    engine = db.get_engine(bench_url)
+    scratch = ScratchDatabase(args.database_url, BENCH_DATABASE)
+    engine = db.get_engine(scratch.create())
     try:
         migrate(engine)
         frames = benchmark_network(n_lanes=args.lanes, seed=1)
@@ -117,10 +111,8 @@ def main() -> None:
         print(f"load average {os.getloadavg()[0]:.2f}")
     finally:
         engine.dispose()
-        if args.keep:
-            return
-        with psycopg.connect(admin_url, autocommit=True) as admin:
-            admin.execute(sql.SQL("DROP DATABASE IF EXISTS {} WITH (FORCE)").format(sql.Identifier(BENCH_DATABASE)))
+        if not args.keep:
+            scratch.drop()
 
 
 if __name__ == "__main__":

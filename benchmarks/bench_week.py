@@ -15,10 +15,11 @@ from __future__ import annotations
 import argparse
 import os
 import resource
-import sys
 import tempfile
 import time
 from pathlib import Path
+
+from process_timing import run_planner  # benchmarks/, the script's own folder
 
 from planner.core.network import assemble_instance
 from planner.core.solve import solve_flow
@@ -29,9 +30,6 @@ from planner.database.snapshot import Scaling, read_snapshot
 from planner.runs.weekly import solve_period
 from planner.synthetic.benchmark_network import benchmark_network
 from planner.synthetic.frames import write_folder
-
-sys.path.insert(0, str(Path(__file__).parent))
-from process_timing import run_planner  # noqa: E402
 
 
 def peak_rss_gib() -> float:
