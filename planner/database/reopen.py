@@ -26,7 +26,7 @@ from planner.database.linked import horizon_fingerprint, horizon_snapshots
 from planner.database.snapshot import Scaling, Snapshot, fetch_columns, read_snapshot, snapshot_names
 from planner.errors import PlannerError
 
-__all__ = ["StoredRun", "StoredWeek", "reopen_run", "reopen_week"]
+__all__ = ["StoredRun", "StoredWeek", "edited_lane_ids", "reopen_run", "reopen_week", "scenario_edits"]
 
 
 @dataclass(frozen=True)
@@ -253,25 +253,39 @@ def reopen_week(conn: Connection, period: str, run_id: int | None = None, snapsh
     return StoredWeek(stored.run_id, period, stored.scaling, snap, stored.instance, stored.flow)
 
 
-def _with_edits(conn: Connection, snap: Snapshot, scenario: int, scaling: Scaling) -> Snapshot:
-    """The snapshot with the scenario's edits applied, and the database ids of its added lanes."""
-    edits = [
+def scenario_edits(conn: Connection, scenario_id: int) -> list[Edit]:
+    """A scenario's stored edits, in the order they apply."""
+    return [
         Edit(r.action, r.target, r.value, r.source, r.source_line)
         for r in conn.execute(text("SELECT * FROM scenario_edit WHERE scenario_id = :s ORDER BY position"),
-                              {"s": scenario})
+                              {"s": scenario_id})
     ]
-    week, names = apply_edits(snap.week, snapshot_names(conn, snap), edits, cost_decimals=scaling.cost_decimals,
-                              quantity_decimals=scaling.quantity_decimals)
+
+
+def edited_lane_ids(conn: Connection, snap: Snapshot, week, lane_mode, *, register: bool = False) -> np.ndarray:
+    """Database ids of an edited week's lanes: the snapshot's, then those the edits added.
+
+    With ``register`` the added lanes' identities are inserted first where new
+    (that changes no snapshot: a week's lanes are its lane_rate rows).
+    """
     n = snap.lane_id.shape[0]
-    added = [
-        conn.execute(
-            text("SELECT id FROM lane WHERE origin_id = :o AND destination_id = :d AND mode = :m"),
-            {"o": int(snap.site_id[week.lane_origin[k]]), "d": int(snap.site_id[week.lane_destination[k]]),
-             "m": str(names.lane_mode[k])},
-        ).scalar_one()
-        for k in range(n, week.n_lanes)
-    ]
+    if week.n_lanes == n:
+        return snap.lane_id
+    rows = [{"o": int(snap.site_id[week.lane_origin[k]]), "d": int(snap.site_id[week.lane_destination[k]]),
+             "m": str(lane_mode[k])} for k in range(n, week.n_lanes)]
+    if register:
+        conn.execute(text("INSERT INTO lane (origin_id, destination_id, mode) VALUES (:o, :d, :m) "
+                          "ON CONFLICT DO NOTHING"), rows)
+    added = [conn.execute(text("SELECT id FROM lane WHERE origin_id = :o AND destination_id = :d AND mode = :m"),
+                          r).scalar_one() for r in rows]
+    return np.concatenate([snap.lane_id, np.array(added, dtype=np.int64)])
+
+
+def _with_edits(conn: Connection, snap: Snapshot, scenario: int, scaling: Scaling) -> Snapshot:
+    """The snapshot with the scenario's edits applied, and the database ids of its added lanes."""
+    week, names = apply_edits(snap.week, snapshot_names(conn, snap), scenario_edits(conn, scenario),
+                              cost_decimals=scaling.cost_decimals, quantity_decimals=scaling.quantity_decimals)
     return dataclasses.replace(
         snap, week=week, lane_mode=np.asarray(names.lane_mode, dtype=object),
-        lane_id=np.concatenate([snap.lane_id, np.array(added, dtype=np.int64)]),
+        lane_id=edited_lane_ids(conn, snap, week, names.lane_mode),
     )

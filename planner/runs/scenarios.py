@@ -29,12 +29,12 @@ import numpy as np
 from sqlalchemy import Connection, Engine, text
 from sqlalchemy.exc import IntegrityError
 
-from planner.core.edits import ACTIONS, Edit, WeekNames, apply_edits, parse_edit
+from planner.core.edits import ACTIONS, Edit, apply_edits, parse_edit
 from planner.core.engines import state_of
 from planner.core.network import assemble_instance
 from planner.core.optimize import optimize
 from planner.core.week import NONE
-from planner.database.reopen import reopen_week
+from planner.database.reopen import edited_lane_ids, reopen_week, scenario_edits
 from planner.database.results import NULL, RunKey, copy_text_rows, decimal_text, to_decimal
 from planner.database.snapshot import Scaling, current_batch, read_snapshot, run_fingerprint, snapshot_names
 from planner.errors import PlannerError, Problem, ValidationError
@@ -196,29 +196,7 @@ def _scenario(conn: Connection, name: str):
     ).mappings().first()
     if row is None:
         raise PlannerError(f"no scenario named {name!r}; list them with `planner scenario list`")
-    edits = [
-        Edit(r.action, r.target, r.value, r.source, r.source_line)
-        for r in conn.execute(
-            text("SELECT * FROM scenario_edit WHERE scenario_id = :s ORDER BY position"), {"s": row["id"]}
-        )
-    ]
-    return row, edits
-
-
-def _lane_ids_of_added(conn: Connection, snap, names: WeekNames, week) -> np.ndarray:
-    """Database ids of the scenario's lanes: the snapshot's, then the added ones (registered as lanes)."""
-    n_base = snap.lane_id.shape[0]
-    if week.n_lanes == n_base:
-        return snap.lane_id
-    rows = [{"o": int(snap.site_id[week.lane_origin[k]]), "d": int(snap.site_id[week.lane_destination[k]]),
-             "m": str(names.lane_mode[k])} for k in range(n_base, week.n_lanes)]
-    # Registering a lane pair changes no snapshot: a week's lanes are its lane_rate rows.
-    conn.execute(text("INSERT INTO lane (origin_id, destination_id, mode) VALUES (:o, :d, :m) "
-                      "ON CONFLICT DO NOTHING"), rows)
-    added = [conn.execute(text("SELECT id FROM lane WHERE origin_id = :o AND destination_id = :d AND mode = :m"),
-                          r).scalar_one() for r in rows]
-    conn.commit()
-    return np.concatenate([snap.lane_id, np.array(added, np.int64)])
+    return row, scenario_edits(conn, row["id"])
 
 
 def solve_scenario(engine: Engine, name: str, *, warm: bool = True) -> ScenarioRun:
@@ -248,7 +226,8 @@ def solve_scenario(engine: Engine, name: str, *, warm: bool = True) -> ScenarioR
         week, names = apply_edits(snap.week, names, edits, cost_decimals=scaling.cost_decimals,
                                   quantity_decimals=scaling.quantity_decimals)
         base = _base_run(conn, snap, scaling) if warm else None
-        lane_ids = _lane_ids_of_added(conn, snap, names, week)
+        lane_ids = edited_lane_ids(conn, snap, week, names.lane_mode, register=True)
+        conn.commit()
     inst = assemble_instance(week, cost_scale=scaling.cost_scale, quantity_scale=scaling.quantity_scale)
     state = state_of(base.instance, base.flow) if base is not None else None
     outcome = optimize(inst, site_codes=snap.site_code, lane_labels=names.lane_keys(week), period_codes=[period],
