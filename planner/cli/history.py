@@ -7,8 +7,7 @@ from typing import List, Optional
 import typer
 from rich.table import Table
 
-from planner.cli.common import DATABASE_URL, app, console, engine, fail, say
-from planner.errors import PlannerError
+from planner.cli.common import DATABASE_URL, app, console, engine, say
 
 
 def _runs(count: int) -> str:
@@ -29,10 +28,7 @@ def prune(
     """
     from planner.database.history import prune as prune_runs
 
-    try:
-        plan = prune_runs(engine(database_url), keep, dry_run=dry_run)
-    except PlannerError as err:
-        fail(err)
+    plan = prune_runs(engine(database_url), keep, dry_run=dry_run)
     if not plan.dropped:
         say(f"nothing to drop: {_runs(plan.kept)} kept (newest {keep} per week, latest optimal, pinned)")
         return
@@ -74,10 +70,7 @@ def pin(
                           f"{r['pinned_at']:%Y-%m-%d %H:%M}", r["pinned_by"], r["note"] or "")
         console.print(table)
         return
-    try:
-        added = pin_runs(db, run_ids, note)
-    except PlannerError as err:
-        fail(err)
+    added = pin_runs(db, run_ids, note)
     already = sorted(set(run_ids) - set(added))
     say(f"pinned {', '.join(map(str, added)) or 'nothing new'}"
         + (f"; already pinned: {', '.join(map(str, already))}" if already else ""))

@@ -26,7 +26,6 @@ from planner.cli.common import (
     console,
     engine,
     err_console,
-    fail,
     money,
     say,
 )
@@ -57,13 +56,10 @@ def create(
     from planner.database.snapshot import Scaling
     from planner.runs.scenarios import command_line_edits, create_scenario, read_edit_file
 
-    try:
-        edits = (read_edit_file(edits_file) if edits_file else []) + command_line_edits(edit or [])
-        db = engine(database_url)
-        create_scenario(db, name, base, edits, description=description,
-                        scaling=Scaling(cost_decimals, quantity_decimals))
-    except PlannerError as err:
-        fail(err)
+    edits = (read_edit_file(edits_file) if edits_file else []) + command_line_edits(edit or [])
+    db = engine(database_url)
+    create_scenario(db, name, base, edits, description=description,
+                    scaling=Scaling(cost_decimals, quantity_decimals))
     say(f"scenario {name} on {base}: {len(edits)} edits stored")
     if solve:
         _solve_and_print(db, [name])
@@ -79,10 +75,7 @@ def solve(
 
     Example: planner scenario solve no-w03 rail-cheaper
     """
-    try:
-        db = engine(database_url)
-    except PlannerError as err:
-        fail(err)
+    db = engine(database_url)
     _solve_and_print(db, names, warm=not cold)
 
 
@@ -123,10 +116,7 @@ def list_command(database_url: Optional[str] = DATABASE_URL) -> None:
     """
     from planner.runs.scenarios import list_scenarios
 
-    try:
-        rows = list_scenarios(engine(database_url))
-    except PlannerError as err:
-        fail(err)
+    rows = list_scenarios(engine(database_url))
     table = Table("scenario", "base", "edits", "latest run", "status", "cost", "engine", "made by", "description")
     for r in rows:
         table.add_row(r["name"], r["base"], str(r["edits"]), str(r["run_id"] or "-"), r["status"] or "-",
@@ -142,10 +132,7 @@ def show(name: str = typer.Argument(..., metavar="NAME", help="Scenario name."),
     """
     from planner.runs.scenarios import scenario_details
 
-    try:
-        sc, edits, runs = scenario_details(engine(database_url), name)
-    except PlannerError as err:
-        fail(err)
+    sc, edits, runs = scenario_details(engine(database_url), name)
     say(f"scenario {sc['name']} on {sc['period']} (batch {sc['batch_id']} when made), by {sc['created_by']} "
         f"at {sc['created_at']:%Y-%m-%d %H:%M}" + (f": {sc['description']}" if sc["description"] else ""))
     table = Table("#", "edit", "written in", title="Edits, applied in this order")
@@ -176,16 +163,13 @@ def compare(
     from planner.reports.formats import records
     from planner.runs.scenarios import scenario_runs
 
-    try:
-        if section is not None and section not in SECTIONS:
-            raise PlannerError(f"unknown section {section!r}; use one of {', '.join(SECTIONS)}")
-        if (scenario is None) == (len(runs or []) != 2):
-            raise PlannerError("give two run ids, or --scenario NAME")
-        db = engine(database_url)
-        a, b = scenario_runs(db, scenario) if scenario else runs
-        result = compare_runs(db, a, b)
-    except PlannerError as err:
-        fail(err)
+    if section is not None and section not in SECTIONS:
+        raise PlannerError(f"unknown section {section!r}; use one of {', '.join(SECTIONS)}")
+    if (scenario is None) == (len(runs or []) != 2):
+        raise PlannerError("give two run ids, or --scenario NAME")
+    db = engine(database_url)
+    a, b = scenario_runs(db, scenario) if scenario else runs
+    result = compare_runs(db, a, b)
     if html is not None:
         from planner.reports.html import render_comparison
 
@@ -247,10 +231,7 @@ def sweep(
     """
     from planner.runs.scenarios import sweep_rate
 
-    try:
-        pieces = sweep_rate(engine(database_url), lane, rate_from, rate_to, period=period, scenario=scenario)
-    except PlannerError as err:
-        fail(err)
+    pieces = sweep_rate(engine(database_url), lane, rate_from, rate_to, period=period, scenario=scenario)
     rows = [{"rate_from": p.rate_from, "rate_to": p.rate_to, "flow": p.flow, "cost_from": p.cost_from,
              "cost_to": p.cost_to} for p in pieces]
     if output_format == OutputFormat.json:
