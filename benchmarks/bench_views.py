@@ -27,7 +27,7 @@ import time
 
 import psycopg
 import sqlalchemy as sa
-from psycopg import sql
+from scratch_database import ScratchDatabase  # benchmarks/, the script's own folder
 
 from planner.database import connect as db
 from planner.database.migrate import migrate
@@ -270,14 +270,10 @@ def main() -> None:
     parser.add_argument("--plans", action="store_true", help="print the full plans")
     args = parser.parse_args()
 
-    server = sa.make_url(db.database_url(args.database_url))
-    admin_url = server.set(drivername="postgresql").render_as_string(hide_password=False)
-    name = args.reuse or BENCH_DATABASE
-    bench_url = server.set(drivername="postgresql", database=name).render_as_string(hide_password=False)
+    scratch = ScratchDatabase(args.database_url, args.reuse or BENCH_DATABASE)
+    name, bench_url = scratch.name, scratch.url
     if not args.reuse:
-        with psycopg.connect(admin_url, autocommit=True) as admin:
-            admin.execute(sql.SQL("DROP DATABASE IF EXISTS {} WITH (FORCE)").format(sql.Identifier(name)))
-            admin.execute(sql.SQL("CREATE DATABASE {}").format(sql.Identifier(name)))
+        scratch.create()
         engine = db.get_engine(bench_url)
         migrate(engine)
         engine.dispose()
@@ -330,8 +326,7 @@ def main() -> None:
             engine.dispose()
     finally:
         if not args.reuse and not args.keep:
-            with psycopg.connect(admin_url, autocommit=True) as admin:
-                admin.execute(sql.SQL("DROP DATABASE IF EXISTS {} WITH (FORCE)").format(sql.Identifier(name)))
+            scratch.drop()
 
 
 if __name__ == "__main__":
