@@ -126,6 +126,21 @@ def test_load_writes_one_batch_with_every_row(engine, write_folder, network_file
     assert period.starts_on.isoweekday() == 1
 
 
+def test_a_load_leaves_fresh_statistics_on_the_tables_the_solve_and_reports_read(
+    engine, write_folder, network_files
+) -> None:
+    # Autovacuum never analyses a table as small as period (50 changed rows are
+    # needed first: PostgreSQL's autovacuum_analyze_threshold, common practice,
+    # no source); without statistics the weekly report's comparison of two weeks
+    # was planned as a nested loop over every pair of sites.
+    load_folder(engine, write_folder(network_files))
+    with engine.connect() as conn:
+        analysed = set(conn.execute(sa.text(
+            "SELECT relname FROM pg_stat_user_tables WHERE last_analyze IS NOT NULL"
+        )).scalars())
+    assert {"period", "site", "site_version", "period_snapshot", "supply", "demand", "lane", "lane_rate"} <= analysed
+
+
 def test_validate_folder_needs_no_database(write_folder, network_files) -> None:
     validated = validate_folder(write_folder(network_files))
     assert validated.periods == ["2026-W40", "2026-W41"]

@@ -409,3 +409,17 @@ def test_weeks_chained_warm_cost_what_ortools_gives_cold_and_certify(engine: sa.
         by_key.setdefault((period, site_id), set()).add((low, high))
     assert len(by_key) == len(prices) // 2
     assert all(len(ends) == 1 for ends in by_key.values())
+
+
+def test_solve_all_warm_records_the_engine_of_each_week(engine: sa.Engine, tmp_path) -> None:
+    frames = benchmark_network(n_plants=6, n_warehouses=20, n_customers=800, n_lanes=6_000, weeks=3, seed=11)
+    load(write_network(frames, tmp_path / "three-weeks"))
+    cold = invoke("solve", "--all", "--workers", "1")
+    warm = invoke("solve", "--all", "--workers", "1", "--warm")
+    assert cold.exit_code == 0 and warm.exit_code == 0, (cold.output, warm.output)
+    with engine.connect() as conn:
+        engines = conn.execute(sa.text("SELECT engine FROM solve_run ORDER BY id")).scalars().all()
+    # Cold: OR-Tools every week. Warm: each week after the first starts from the one before.
+    assert engines[:3] == ["ortools"] * 3
+    assert engines[4:] == ["warm", "warm"]
+
