@@ -121,6 +121,7 @@ def limit_values(
     other_duals: tuple = (),
     *,
     engine: str = "auto",
+    only=None,
 ) -> LimitValues:
     """Exact one-sided values of every limit at its bound.
 
@@ -140,6 +141,8 @@ def limit_values(
         cost on the arc); where one of them shows it is zero, no search is run.
     engine : {"auto", "compiled", "scipy"}
         The search engine (:func:`planner.core.search.run_searches`).
+    only : array-like of int, optional
+        Value only the limits of these arcs (the others are left out).
 
     Returns
     -------
@@ -168,6 +171,8 @@ def limit_values(
     graph = ZeroComponents(inst.n_nodes, res, res.weight + pi[res.tail] - pi[res.head], engine=engine)
     cap = np.flatnonzero(np.isin(inst.arc_kind, LIMITED_KINDS) & ~inst.unlimited & (flow >= inst.upper))
     low = np.flatnonzero((inst.arc_kind == ArcKind.LANE) & (inst.lower > 0) & (flow <= inst.lower))
+    if only is not None:
+        cap, low = (np.intersect1d(side, np.asarray(only, dtype=np.int64)) for side in (cap, low))
     duals = [(pi, np.ones(inst.n_nodes, dtype=bool))] + [
         (np.asarray(d, np.int64), np.asarray(m, bool)) for d, m in other_duals
     ]
