@@ -242,6 +242,57 @@ def test_sweep_passes_through_the_stored_plan_at_the_lane_s_own_rate(
     assert Decimal(pieces[0]["rate_from"]) == 0 and Decimal(pieces[-1]["rate_to"]) == 9
 
 
+@pytest.mark.parametrize(
+    ("option", "target", "low", "high", "own_sql", "slope_key"),
+    [
+        # one more unit of the full rail lane saves its stored exact capacity value
+        ("--capacity", "P2->W1 rail", "10", "80",
+         "SELECT bound, loosen_value FROM limit_value "
+         "WHERE period = '2026-W40' AND label = 'P2->W1 rail' AND kind = 'lane capacity'",
+         "saving_per_unit"),
+        # one more unit needed at C3 (no shortage penalty) costs its stored price_high
+        ("--demand", "C3", "0", "60",
+         "SELECT 20, price_high FROM site_price_history WHERE period = '2026-W40' AND site = 'C3'", "cost_per_unit"),
+        # the warehouse moves 75 of its 120 units: more throughput saves nothing
+        ("--throughput", "W1", "50", "150", "SELECT 120, 0", "saving_per_unit"),
+    ],
+)
+def test_figure_sweeps_pass_through_the_stored_plan_with_its_stored_marginal_value(
+    engine: sa.Engine, write_folder, network_files, option, target, low, high, own_sql, slope_key
+) -> None:
+    loaded_and_solved(write_folder, network_files)
+    with engine.connect() as conn:
+        own, value = conn.execute(sa.text(own_sql)).one()
+        primal = conn.execute(sa.text("SELECT primal_cost FROM solve_run WHERE id = "
+                                      "(SELECT run_id FROM latest_week_run WHERE period = '2026-W40')")).scalar_one()
+    out = invoke("sweep", "-p", "2026-W40", option, target, "--from", low, "--to", high, "--at", str(own),
+                 "--format", "json")
+    assert out.exit_code == 0, out.output
+    answer = json.loads(out.output)
+    (at_own,) = answer["at"]
+    # the cost at the week's own figure is the stored optimum, the slope there the stored right derivative
+    assert Decimal(str(at_own["cost"])) == primal
+    assert Decimal(str(at_own[slope_key])) == Decimal(value)
+    pieces = answer["pieces"]
+    key = option.removeprefix("--")
+    assert [p[f"{key}_to"] for p in pieces[:-1]] == [p[f"{key}_from"] for p in pieces[1:]]
+    assert Decimal(str(pieces[0][f"{key}_from"])) == Decimal(low) and Decimal(str(pieces[-1][f"{key}_to"])) == Decimal(high)
+
+
+def test_sweep_errors_name_the_figure(engine: sa.Engine, write_folder, network_files) -> None:
+    loaded_and_solved(write_folder, network_files)
+    # C3 has no shortage penalty and supply is 110 units; C1 and C2 may go short (at a penalty)
+    out = invoke("sweep", "-p", "2026-W40", "--demand", "C3", "--from", "0", "--to", "500")
+    assert out.exit_code == 2 and "2026-W40 has no plan above demand 110 of C3" in out.output, out.output
+    out = invoke("sweep", "-p", "2026-W40", "--demand", "C9", "--from", "0", "--to", "5")
+    assert out.exit_code == 2 and "no site 'C9'" in out.output
+    out = invoke("sweep", "-p", "2026-W40", "--rate", "P1->W1 road", "--capacity", "P1->W1 road", "--from", "0",
+                 "--to", "5")
+    assert out.exit_code == 2 and "name one figure to vary" in out.output
+    out = invoke("sweep", "-p", "2026-W40", "--capacity", "P1->W1 road", "--from", "0", "--to", "5", "--at", "9")
+    assert out.exit_code == 2 and "9 lies outside the sweep" in out.output
+
+
 def test_comparison_html_holds_the_same_rows_as_the_comparison(
     engine: sa.Engine, write_folder, network_files, tmp_path
 ) -> None:

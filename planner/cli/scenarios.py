@@ -215,37 +215,105 @@ def comparison_table(result, name: str, rows: int) -> Table:
     return table
 
 
+#: Per figure swept: its key in CSV/JSON, the slope's key and its column title.
+_SWEEP_COLUMNS = {
+    "rate": ("rate", "flow", "flow on the lane (slope)"),
+    "capacity": ("capacity", "saving_per_unit", "saving of one more unit"),
+    "throughput": ("throughput", "saving_per_unit", "saving of one more unit"),
+    "demand": ("demand", "cost_per_unit", "cost of one more unit"),
+}
+
+
 @app.command()
 def sweep(
-    lane: str = typer.Option(..., "--lane", metavar="LANE", help="The lane whose rate varies, as ORIGIN->DESTINATION MODE."),
-    rate_from: str = typer.Option(..., "--from", metavar="RATE", help="Lowest rate."),
-    rate_to: str = typer.Option(..., "--to", metavar="RATE", help="Highest rate."),
+    rate: Optional[str] = typer.Option(None, "--rate", "--lane", metavar="LANE",
+                                       help="Vary this lane's rate (ORIGIN->DESTINATION MODE)."),
+    capacity: Optional[str] = typer.Option(None, "--capacity", metavar="LANE", help="Vary this lane's capacity."),
+    throughput: Optional[str] = typer.Option(None, "--throughput", metavar="WAREHOUSE",
+                                             help="Vary this warehouse's throughput capacity."),
+    demand: Optional[str] = typer.Option(None, "--demand", metavar="CUSTOMER", help="Vary this customer's demand."),
+    low: str = typer.Option(..., "--from", metavar="FIGURE", help="Lowest figure (money for a rate, units otherwise)."),
+    high: str = typer.Option(..., "--to", metavar="FIGURE", help="Highest figure."),
+    at: list[str] = typer.Option([], "--at", metavar="FIGURE",
+                                 help="Also give the optimal cost at this figure (repeatable)."),
     period: Optional[str] = typer.Option(None, "--period", "-p", metavar="WEEK", help="The week (its current snapshot)."),
     scenario: Optional[str] = typer.Option(None, "--scenario", "-s", metavar="NAME", help="A scenario instead of a week."),
     output_format: OutputFormat = typer.Option(OutputFormat.table, "--format", metavar="FORMAT", help="table, csv or json."),
     database_url: Optional[str] = DATABASE_URL,
 ) -> None:
-    """The optimal cost as one lane's rate varies: exact breakpoints, with the lane's flow (the slope) on each piece.
+    """The optimal cost as one figure varies: exact breakpoints, with the slope on each piece.
 
-    Example: planner sweep -p 2026-W52 --lane "P02->W03 road" --from 3 --to 8
+    Vary a lane's rate (the slope is the lane's flow), a lane's capacity or a
+    warehouse's throughput (the saving of one more unit), or a customer's demand
+    (the cost of one more unit). With --at, also the cost at those figures; csv
+    then prints those rows, json an object with "pieces" and "at".
+
+    Example: planner sweep -p 2026-W52 --rate "P02->W03 road" --from 3 --to 8
     """
-    from planner.runs.scenarios import sweep_rate
+    from decimal import Decimal, InvalidOperation
 
-    pieces = sweep_rate(engine(database_url), lane, rate_from, rate_to, period=period, scenario=scenario)
-    rows = [{"rate_from": p.rate_from, "rate_to": p.rate_to, "flow": p.flow, "cost_from": p.cost_from,
+    from planner.runs.scenarios import cost_at
+    from planner.runs.scenarios import sweep as sweep_figure
+
+    chosen = {k: v for k, v in (("rate", rate), ("capacity", capacity), ("throughput", throughput),
+                                ("demand", demand)) if v is not None}
+    if len(chosen) != 1:
+        raise PlannerError("name one figure to vary: --rate LANE, --capacity LANE, --throughput WAREHOUSE "
+                           "or --demand CUSTOMER")
+    (figure, target), = chosen.items()
+    pieces = sweep_figure(engine(database_url), figure, target, low, high, period=period, scenario=scenario)
+    key, slope_key, slope_title = _SWEEP_COLUMNS[figure]
+    sign = 1 if figure in ("rate", "demand") else -1  # a capacity's slope is minus the saving
+
+    def value(text_: str) -> Decimal:
+        try:
+            return Decimal(text_)
+        except InvalidOperation:
+            raise PlannerError(f"--at {text_!r} is not a number") from None
+
+    grid = [(value(x), *cost_at(pieces, value(x))) for x in at]
+    rows = [{f"{key}_from": p.start, f"{key}_to": p.end, slope_key: _signed(sign, p.slope), "cost_from": p.cost_from,
              "cost_to": p.cost_to} for p in pieces]
+    grid_rows = [{key: x, "cost": cost, slope_key: _signed(sign, slope)} for x, cost, slope in grid]
     if output_format == OutputFormat.json:
         from planner.reports.formats import json_value
 
-        print(json.dumps([{k: json_value(v) for k, v in r.items()} for r in rows], indent=2))
+        def listed(items: list[dict]) -> list[dict]:
+            return [{k: json_value(v) for k, v in r.items()} for r in items]
+
+        print(json.dumps({"pieces": listed(rows), "at": listed(grid_rows)} if at else listed(rows), indent=2))
     elif output_format == OutputFormat.csv:
         import pandas as pd
 
-        print(pd.DataFrame(rows, columns=list(rows[0])).to_csv(index=False), end="")
+        shown = grid_rows if at else rows
+        print(pd.DataFrame(shown, columns=list(shown[0])).to_csv(index=False), end="")
     else:
-        table = Table("rate from", "rate to", "flow on the lane (slope)", "cost from", "cost to",
-                      title=f"Optimal cost as the rate of {lane} varies", caption="breakpoints are exact")
-        for r in rows:
-            table.add_row(number(r["rate_from"], 4), number(r["rate_to"], 4), units(r["flow"]),
-                          money(r["cost_from"]), money(r["cost_to"]))
-        console.print(table)
+        console.print(_sweep_table(figure, target, pieces, sign, slope_title))
+        if grid:
+            table = Table(figure, slope_title, "optimal cost", title="At the figures asked for")
+            for row in grid_rows:
+                table.add_row(*_figure_texts(figure, row[key], row[slope_key]), money(row["cost"]))
+            console.print(table)
+
+
+def _signed(sign: int, slope):
+    """``slope`` or minus it, never a negative zero."""
+    return slope if sign > 0 else 0 - slope
+
+
+def _figure_texts(figure: str, value, slope) -> tuple[str, str]:
+    """A swept figure and a slope for a table: a rate and money per unit as money, units as units."""
+    if figure == "rate":
+        return number(value), units(slope)
+    return units(value), number(slope)
+
+
+def _sweep_table(figure: str, target: str, pieces, sign: int, slope_title: str) -> Table:
+    what = {"rate": "the rate of", "capacity": "the capacity of", "throughput": "the throughput capacity of",
+            "demand": "the demand of"}[figure]
+    table = Table(f"{figure} from", f"{figure} to", slope_title, "cost from", "cost to",
+                  title=f"Optimal cost as {what} {target} varies", caption="breakpoints are exact")
+    for p in pieces:
+        start, slope = _figure_texts(figure, p.start, _signed(sign, p.slope))
+        table.add_row(start, _figure_texts(figure, p.end, 0)[0], slope, money(p.cost_from), money(p.cost_to))
+    return table

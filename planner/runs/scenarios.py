@@ -40,8 +40,8 @@ from planner.database.snapshot import Scaling, current_batch, read_snapshot, run
 from planner.errors import PlannerError, Problem, ValidationError
 from planner.runs.weekly import RunSummary, store_and_summarise
 
-__all__ = ["ScenarioRun", "SweepPiece", "create_scenario", "list_scenarios", "read_edit_file", "scenario_details",
-           "scenario_runs", "solve_scenario", "sweep_rate"]
+__all__ = ["SWEEP_FIGURES", "ScenarioRun", "SweepPiece", "cost_at", "create_scenario", "list_scenarios",
+           "read_edit_file", "scenario_details", "scenario_runs", "solve_scenario", "sweep", "sweep_rate"]
 
 _COLUMNS = ("action", "target", "value")
 
@@ -345,40 +345,62 @@ def scenario_runs(engine: Engine, name: str) -> tuple[int, int]:
     return int(base), int(run)
 
 
+#: What a sweep can vary, and what it names: a lane's rate or capacity, a
+#: warehouse's throughput capacity, a customer's demand.
+SWEEP_FIGURES = {"rate": "lane", "capacity": "lane", "throughput": "warehouse", "demand": "customer"}
+
+
 @dataclass(frozen=True)
 class SweepPiece:
-    """One piece of a sweep in currency and units: the same plan is optimal from ``rate_from`` to ``rate_to``."""
+    """One piece of a sweep in currency and units: the optimal cost is linear from ``start`` to ``end``.
 
-    rate_from: Decimal
-    rate_to: Decimal
-    flow: Decimal
+    ``slope`` is the change of the optimal cost per unit of the figure: the
+    lane's flow (rate), minus the saving of one more unit (capacity,
+    throughput), the cost of one more unit (demand). ``engine`` produced the
+    plan at ``start``.
+    """
+
+    start: Decimal
+    end: Decimal
+    slope: Decimal
     cost_from: Decimal
     cost_to: Decimal
     engine: str
 
+    def cost_at(self, figure: Decimal) -> Decimal:
+        """The optimal cost at ``figure`` (inside the piece)."""
+        return self.cost_from + (figure - self.start) * self.slope
 
-def sweep_rate(
-    engine: Engine, lane: str, rate_from: str, rate_to: str, *, period: str | None = None,
+
+def sweep(
+    engine: Engine, figure: str, target: str, low: str, high: str, *, period: str | None = None,
     scenario: str | None = None, scaling: Scaling = Scaling(),
 ) -> list[SweepPiece]:
-    """Exact pieces of the optimal cost of a week (or a scenario) as one lane's rate goes from one figure to another.
+    """Exact pieces of the optimal cost of a week (or a scenario) as one figure goes from ``low`` to ``high``.
 
     Parameters
     ----------
-    lane : str
-        ``O->D`` or ``O->D MODE``.
-    rate_from, rate_to : str
-        Decimal figures at the precision of the week (or of the scenario).
+    figure : {"rate", "capacity", "throughput", "demand"}
+        What varies (:data:`SWEEP_FIGURES`).
+    target : str
+        The lane (``O->D`` or ``O->D MODE``) for a rate or a capacity, the
+        warehouse for a throughput, the customer for a demand.
+    low, high : str
+        Decimal figures at the precision of the week (or of the scenario):
+        money for a rate, units otherwise.
     period, scenario : str
         The week, or a scenario (its base week with its edits applied).
 
     Raises
     ------
     PlannerError
-        For an unknown lane or week, figures beyond the precision, or a week without a plan at some rate.
+        For an unknown lane, site or week, figures beyond the precision, or a
+        week without a plan somewhere in the range (the message says where).
     """
-    from planner.core.sweep import rate_sweep
+    from planner.core import sweep as core
 
+    if figure not in SWEEP_FIGURES:
+        raise PlannerError(f"a sweep varies one of {', '.join(SWEEP_FIGURES)}, not {figure!r}")
     if (period is None) == (scenario is None):
         raise PlannerError("give --period P or --scenario NAME")
     with engine.connect() as conn:
@@ -390,23 +412,61 @@ def sweep_rate(
         names = snapshot_names(conn, snap)
     week, names = apply_edits(snap.week, names, edits,
                               cost_decimals=scaling.cost_decimals, quantity_decimals=scaling.quantity_decimals)
-    found = np.flatnonzero(names.lane_keys(week) == " ".join(lane.split()))
-    if found.shape[0] != 1:
-        raise PlannerError(f"no lane {lane!r} in {period}; name it as ORIGIN->DESTINATION MODE")
-    low, high = (_scaled_rate(v, scaling) for v in (rate_from, rate_to))
-    pieces = rate_sweep(week, int(found[0]), low, high, cost_scale=scaling.cost_scale,
-                        quantity_scale=scaling.quantity_scale)
     cd, qd = scaling.cost_decimals, scaling.quantity_decimals
-    return [SweepPiece(to_decimal(p.start, cd), to_decimal(p.end, cd), to_decimal(p.flow, qd),
-                       to_decimal(p.cost_at_start, cd + qd), to_decimal(p.cost_at(p.end), cd + qd), p.engine)
+    figure_decimals, slope_decimals = (cd, qd) if figure == "rate" else (qd, cd)
+    start, end = (_scaled(v, figure_decimals, "rate" if figure == "rate" else figure) for v in (low, high))
+    index = _sweep_target(week, names, figure, target, period)
+    swept = {"rate": core.rate_sweep, "capacity": core.capacity_sweep, "throughput": core.throughput_sweep,
+             "demand": core.demand_sweep}[figure]
+    try:
+        pieces = swept(week, index, start, end, cost_scale=scaling.cost_scale, quantity_scale=scaling.quantity_scale)
+    except core.NoPlanInSweep as error:
+        at = to_decimal(error.figure, figure_decimals)
+        where = f"above {figure} {at}" if error.above else f"at {figure} {at}"
+        raise PlannerError(f"{period} has no plan {where} of {target}"
+                           + (": one more unit cannot be had at any cost" if error.above else "")) from None
+    return [SweepPiece(to_decimal(p.start, figure_decimals), to_decimal(p.end, figure_decimals),
+                       to_decimal(p.slope, slope_decimals), to_decimal(p.cost_at_start, cd + qd),
+                       to_decimal(p.cost_at(p.end), cd + qd), p.engine)
             for p in pieces]
 
 
-def _scaled_rate(value: str, scaling: Scaling) -> int:
+def sweep_rate(engine: Engine, lane: str, rate_from: str, rate_to: str, **where) -> list[SweepPiece]:
+    """:func:`sweep` of one lane's rate (the slope of each piece is the lane's flow)."""
+    return sweep(engine, "rate", lane, rate_from, rate_to, **where)
+
+
+def cost_at(pieces: list[SweepPiece], figure: Decimal) -> tuple[Decimal, Decimal]:
+    """The optimal cost at ``figure`` and the slope just above it (just below it at the sweep's end).
+
+    Raises
+    ------
+    PlannerError
+        When ``figure`` lies outside the sweep.
+    """
+    if not pieces or not pieces[0].start <= figure <= pieces[-1].end:
+        raise PlannerError(f"{figure} lies outside the sweep")
+    piece = next((p for p in pieces if p.start <= figure < p.end), pieces[-1])
+    return piece.cost_at(figure), piece.slope
+
+
+def _sweep_target(week, names, figure: str, target: str, period: str) -> int:
+    if SWEEP_FIGURES[figure] == "lane":
+        found = np.flatnonzero(names.lane_keys(week) == " ".join(target.split()))
+        if found.shape[0] != 1:
+            raise PlannerError(f"no lane {target!r} in {period}; name it as ORIGIN->DESTINATION MODE")
+        return int(found[0])
+    found = np.flatnonzero(names.site_code == target.strip())
+    if found.shape[0] != 1:
+        raise PlannerError(f"no site {target!r} in {period}")
+    return int(found[0])
+
+
+def _scaled(value: str, decimals: int, what: str) -> int:
     try:
-        scaled = Decimal(value).scaleb(scaling.cost_decimals)
+        scaled = Decimal(value).scaleb(decimals)
     except InvalidOperation:
-        raise PlannerError(f"rate {value!r} is not a number") from None
-    if scaled != scaled.to_integral_value():
-        raise PlannerError(f"rate {value!r} has more than {scaling.cost_decimals} decimals")
+        raise PlannerError(f"{what} {value!r} is not a number") from None
+    if not scaled.is_finite() or scaled != scaled.to_integral_value():
+        raise PlannerError(f"{what} {value!r} has more than {decimals} decimals")
     return int(scaled)
