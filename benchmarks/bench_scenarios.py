@@ -9,6 +9,8 @@
 3. One lane's rate is swept over the range of 100 rate scenarios (its rate
    -50 % to +50 %): the exact sweep's time against one bare cold OR-Tools
    solve (target: under 3 x for all of it).
+   A full lane's capacity and a customer's demand are swept from half to one
+   and a half times their figure (no target; the time per piece is printed).
 4. The scenario run is compared with the week's run (``compare_runs``: cost by
    echelon and mode, prices, flows, binding limits): target under 2 s.
 
@@ -38,7 +40,7 @@ from planner.database.ingest import load_folder
 from planner.database.migrate import migrate
 from planner.database.snapshot import Scaling, read_snapshot
 from planner.reports.compare import compare_runs
-from planner.runs.scenarios import command_line_edits, create_scenario, solve_scenario, sweep_rate
+from planner.runs.scenarios import command_line_edits, create_scenario, solve_scenario, sweep, sweep_rate
 from planner.runs.weekly import solve_period
 from planner.synthetic.benchmark_network import benchmark_network
 from planner.synthetic.frames import write_folder
@@ -103,6 +105,23 @@ def main() -> None:
         sweep_s = time.perf_counter() - start
         print(f"exact sweep of {label} from {low} to {high}: {len(pieces)} pieces in {sweep_s:.2f} s, "
               f"{sweep_s / bare:.2f} x one bare cold solve (target < 3 for the range of 100 rate scenarios)")
+
+        # A full lane and a customer, each swept from half to one and a half times its figure.
+        with engine.connect() as conn:
+            full, bound = conn.execute(sa.text(
+                "SELECT label, bound FROM limit_value_of_run(:r) WHERE kind = 'lane capacity' "
+                "ORDER BY loosen_value DESC, label LIMIT 1"), {"r": base.run_id}).one()
+            customer, demand = conn.execute(sa.text(
+                "SELECT s.code, d.quantity FROM demand d JOIN site s ON s.id = d.site_id "
+                "JOIN solve_run r ON r.id = :r AND d.batch_id = r.batch_id AND d.period_id = r.period_id "
+                "ORDER BY d.quantity DESC, s.code LIMIT 1"), {"r": base.run_id}).one()
+        for figure, target, middle in (("capacity", full, bound), ("demand", customer, demand)):
+            low, high = (int(middle * Decimal(f)) for f in ("0.5", "1.5"))
+            start = time.perf_counter()
+            pieces = sweep(engine, figure, target, str(low), str(high), period=week)
+            took = time.perf_counter() - start
+            print(f"exact sweep of the {figure} of {target} from {low} to {high}: {len(pieces)} pieces in "
+                  f"{took:.2f} s, {took / bare:.2f} x one bare cold solve")
 
         start = time.perf_counter()
         comparison = compare_runs(engine, base.run_id, run.summary.run_id)
