@@ -282,6 +282,157 @@ void planner_warm_tree_push(
     }
 }
 
+/*
+ * A path s -> t of tight residual arcs (reduced cost 0), found depth first
+ * after a search has made its shortest path tight: every such path costs what
+ * that one did, so it may take more of the lane's units without another
+ * search. seen[v] == phase marks nodes on the current path and dead ends of
+ * this phase (a dead end may hide a path that a later search then finds: the
+ * answer stays exact, only slower). On success pred[] holds the path's
+ * incidences; returns 1, 0 (no tight path) or ROUTE_OVERFLOW.
+ */
+typedef struct {
+    int64_t *seen, *cur, *stack, *pred;
+    int64_t phase;
+} depth_first;
+
+static int tight_path(const network *g, depth_first *d, int64_t s, int64_t t) {
+    int64_t top = 0;
+    d->seen[s] = d->phase;
+    d->cur[s] = g->first_out[s];
+    d->stack[top++] = s;
+    while (top > 0) {
+        int64_t u = d->stack[top - 1];
+        if (u == t) {
+            for (int64_t i = 0; i < top; i++) d->seen[d->stack[i]] = 0;  /* path nodes may carry the next path */
+            return 1;
+        }
+        int64_t next = -1;
+        for (; d->cur[u] < g->first_out[u + 1]; d->cur[u]++) {
+            int64_t code = g->inc[d->cur[u]], cap, v, r;
+            if (step(g, code, &cap, &v, &r)) return ROUTE_OVERFLOW;
+            if (cap <= 0 || r != 0 || d->seen[v] == d->phase) continue;
+            d->seen[v] = d->phase;
+            d->cur[v] = g->first_out[v];
+            d->pred[v] = code;
+            next = v;
+            break;
+        }
+        if (next >= 0) {
+            d->stack[top++] = next;
+        } else {
+            top--;  /* u is a dead end for this phase */
+            if (top > 0) d->cur[d->stack[top - 1]]++;
+        }
+    }
+    return 0;
+}
+
+/* Push as much as the tight path s -> t (pred[]), the excess and the deficit allow. */
+static void push_tight(const network *g, const depth_first *d, int64_t s, int64_t t) {
+    int64_t delta = g->excess[s] < -g->excess[t] ? g->excess[s] : -g->excess[t];
+    for (int64_t v = t; v != s; v = previous(g, d->pred[v])) {
+        int64_t code = d->pred[v], a = code >> 1;
+        int64_t cap = (code & 1) ? g->flow[a] - g->lower[a] : g->upper[a] - g->flow[a];
+        if (cap < delta) delta = cap;
+    }
+    for (int64_t v = t; v != s; v = previous(g, d->pred[v])) {
+        int64_t code = d->pred[v], a = code >> 1;
+        g->flow[a] += (code & 1) ? -delta : delta;
+    }
+    g->excess[s] -= delta;
+    g->excess[t] += delta;
+}
+
+/*
+ * The pieces of a rate sweep (planner.core.sweep): how lane arc `lane` (t -> h)
+ * gives up its flow as its rate rises (reverse = 0), or takes more as its rate
+ * falls (reverse = 1). The caller pins the arc (lower = upper = flow) so that no
+ * search uses it, and passes an optimal flow with a potential whose reduced
+ * costs are non-negative on every other residual arc. Rising, giving up
+ * `units` units of the lane leaves t with that excess and h with that deficit;
+ * falling, taking them on leaves h with the excess and t with the deficit. Each
+ * search from the node with the excess (s) settles the other (z) at reduced
+ * distance D, the real cost of the cheapest other route s -> z is D - pi(s) +
+ * pi(z) (before the potential update), and the route takes as much as its
+ * residual capacity and the units still to move allow. Routes come out in
+ * order of cost (successive shortest paths keep the conditions), so the optimal
+ * cost, as a function of the rate, bends at each route's cost (rising) or at
+ * minus it (falling) by the units it takes. After each search, further tight
+ * paths of the same cost take units without a search (tight_path). Each step
+ * writes out_rate[k] (the route's cost) and out_units[k]; the loop ends when no
+ * units are left, no route exists, a route costs more than rate_limit, or
+ * max_steps steps are written. *n_out is the number of steps. Returns 0, or an
+ * error code of planner_warm_route (ROUTE_BUDGET: max_steps reached first).
+ */
+int planner_warm_rate_sweep(
+    int64_t n, const int64_t *tail, const int64_t *head, const int64_t *cost, const int64_t *lower,
+    const int64_t *upper, const int64_t *first_out, const int64_t *inc,
+    int64_t *flow, int64_t *pi, int64_t *excess, int64_t lane, int64_t reverse, int64_t units, int64_t rate_limit,
+    int64_t max_steps, int64_t *out_rate, int64_t *out_units, int64_t *n_out, int64_t *stats)
+{
+    network g = {n, tail, head, cost, lower, upper, first_out, inc, flow, pi, excess};
+    workspace w = {0};
+    depth_first d = {0};
+    int status = ROUTE_BALANCED;
+    int64_t t = reverse ? head[lane] : tail[lane], h = reverse ? tail[lane] : head[lane];  /* s and z above */
+    *n_out = 0;
+    w.dist = malloc((size_t)n * sizeof(int64_t));
+    w.pred = malloc((size_t)n * sizeof(int64_t));
+    w.touched = malloc((size_t)n * sizeof(int64_t));
+    w.settled = malloc((size_t)n * sizeof(int64_t));
+    w.done = calloc((size_t)n, 1);
+    d.seen = calloc((size_t)n, sizeof(int64_t));
+    d.cur = malloc((size_t)n * sizeof(int64_t));
+    d.stack = malloc((size_t)n * sizeof(int64_t));
+    d.pred = malloc((size_t)n * sizeof(int64_t));
+    if (!w.dist || !w.pred || !w.touched || !w.settled || !w.done || !d.seen || !d.cur || !d.stack || !d.pred) {
+        status = ROUTE_NO_MEMORY;
+        goto done;
+    }
+    for (int64_t v = 0; v < n; v++) w.dist[v] = -1;
+    excess[t] += units;
+    excess[h] -= units;
+    while (excess[t] > 0 && status == ROUTE_BALANCED) {
+        if (*n_out >= max_steps) { status = ROUTE_BUDGET; break; }
+        int64_t found = search(&g, &w, t);
+        stats[0] += 1;
+        stats[1] += w.n_settled;
+        if (found == ROUTE_NO_DEFICIT) { forget(&w); break; }
+        if (found < 0) { status = (int)found; forget(&w); break; }
+        if (found != h) { status = ROUTE_BROKEN; forget(&w); break; }  /* only h may have a deficit */
+        int64_t rate, sum;
+        if (__builtin_sub_overflow(w.dist[h], pi[t], &sum) || __builtin_add_overflow(sum, pi[h], &rate)) {
+            status = ROUTE_OVERFLOW; forget(&w); break;
+        }
+        if (rate > rate_limit) { forget(&w); break; }
+        int64_t before = excess[t];
+        status = augment(&g, &w, t, h);
+        forget(&w);
+        out_rate[*n_out] = rate;
+        out_units[(*n_out)++] = before - excess[t];
+        /* Tight paths now cost the same: -pi(t) + pi(h) after the update; one
+         * phase of them (its dead ends stay marked until the next search). */
+        d.phase += 1;
+        while (status == ROUTE_BALANCED && excess[t] > 0) {
+            int found_path = tight_path(&g, &d, t, h);
+            if (found_path < 0) { status = found_path; break; }
+            if (!found_path) break;
+            if (*n_out >= max_steps) { status = ROUTE_BUDGET; break; }
+            before = excess[t];
+            push_tight(&g, &d, t, h);
+            out_rate[*n_out] = rate;
+            out_units[(*n_out)++] = before - excess[t];
+        }
+    }
+    excess[h] += excess[t];  /* units not given up stay on the lane */
+    excess[t] = 0;
+done:
+    free(w.dist); free(w.pred); free(w.touched); free(w.settled); free(w.done); free(w.h.items);
+    free(d.seen); free(d.cur); free(d.stack); free(d.pred);
+    return status;
+}
+
 static struct PyModuleDef warm_module = {
     PyModuleDef_HEAD_INIT, "_warm",
     "Compiled routing loop of planner.core.engines: successive shortest paths, called through ctypes.",

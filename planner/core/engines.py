@@ -214,6 +214,7 @@ class _Kernel:
     tree_potential: ctypes._CFuncPtr
     tree_push: ctypes._CFuncPtr
     route: ctypes._CFuncPtr
+    rate_sweep: ctypes._CFuncPtr
 
 
 @functools.cache
@@ -232,7 +233,10 @@ def compiled_kernel() -> _Kernel | None:
             push.argtypes = [ctypes.c_int64] + [ctypes.c_void_p] * 8
             route.argtypes = [ctypes.c_int64] + [ctypes.c_void_p] * 10 + [ctypes.c_int64, ctypes.c_void_p,
                                                                            ctypes.c_int64, ctypes.c_void_p, ctypes.c_void_p]
-            return _Kernel(tree, push, route)
+            sweep = library.planner_warm_rate_sweep
+            sweep.restype = ctypes.c_int
+            sweep.argtypes = [ctypes.c_int64] + [ctypes.c_void_p] * 10 + [ctypes.c_int64] * 5 + [ctypes.c_void_p] * 4
+            return _Kernel(tree, push, route, sweep)
     return None
 
 

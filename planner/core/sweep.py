@@ -3,11 +3,19 @@
 With every other figure fixed, the optimal cost is a piecewise linear, concave
 function of one lane's rate ``c``: the minimum over plans of
 ``fixed cost + c * flow on the lane``. On each piece one plan is optimal and the
-slope is that plan's flow on the lane [1]_. The rate range of the lane under a
-plan (:func:`planner.core.rates.rate_ranges`) ends exactly where the next plan
-becomes as cheap, so the sweep solves once per piece: at the start of the sweep,
-then one scaled unit past each range's upper end, warm from the previous plan
-(:func:`planner.core.engines.solve_with`). Every number is an exact integer.
+slope is that plan's flow on the lane [1]_. Every number is an exact integer.
+
+The sweep solves once, at the start of the range, and then gives up the lane's
+flow route by route in the compiled kernel (``_warm.c``): with the lane held
+fixed, the cheapest other route from its origin to its destination (successive
+shortest paths on the residual graph, which keep the plan optimal for the flow
+the lane still carries [2]_) costs ``D``, so above rate ``D`` the plan moves
+as many units to it as the route can take; the routes come in order of cost,
+and each distinct cost is a breakpoint. The last plan is certified at the end
+of the range, at the cost the pieces say; if it is not (or the kernel is not
+built), the sweep falls back to its reference path: one warm solve per piece,
+each piece ending where the lane's rate range under its plan ends
+(:func:`planner.core.rates.rate_ranges`).
 
 A capacity (of a lane or of a warehouse's throughput) or a customer's demand
 moves the right-hand side instead, and the optimal cost is piecewise linear and
@@ -24,17 +32,21 @@ References
 .. [1] R. K. Ahuja, T. L. Magnanti and J. B. Orlin, *Network Flows: Theory,
    Algorithms, and Applications*, Prentice Hall, 1993, section 9.11 (cost
    sensitivity) and section 11.8 (parametric analysis).
+.. [2] Same book, section 9.7 (successive shortest paths and their
+   reduced-cost optimality).
 """
 
 from __future__ import annotations
 
 import dataclasses
 from collections.abc import Callable
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 
 import numpy as np
 
-from planner.core.engines import solve_with, state_of
+from planner.core.certificate import certify
+from planner.core.engines import Incidence, WarmState, compiled_kernel, same_layout, solve_with, state_of
 from planner.core.limits import CAPACITY, limit_values
 from planner.core.network import ArcKind, Instance, assemble_instance
 from planner.core.paths import UNLIMITED
@@ -77,8 +89,15 @@ class Piece:
 
 
 def rate_sweep(week: WeekData, lane: int, start: int, end: int, *, cost_scale: int = 10_000,
-               quantity_scale: int = 1) -> list[Piece]:
+               quantity_scale: int = 1, engine: str = "auto", warm: WarmState | None = None) -> list[Piece]:
     """The pieces of the optimal cost as lane ``lane``'s rate goes from ``start`` to ``end`` (scaled).
+
+    ``engine`` ``"auto"`` solves once and lets the compiled kernel give up the
+    lane's flow route by route (falling back to one solve per piece when the
+    kernel is not built or its last plan does not certify); ``"solves"`` always
+    solves once per piece (the reference); ``"compiled"`` requires the kernel.
+    ``warm`` (an optimum of the week at other rates, for example its stored
+    run) starts the first solve (:func:`planner.core.engines.solve_with`).
 
     Returns
     -------
@@ -104,29 +123,172 @@ def rate_sweep(week: WeekData, lane: int, start: int, end: int, *, cost_scale: i
     """
     if start > end:
         raise PlannerError(f"a sweep runs from a lower rate to a higher one, not from {start} to {end}")
+    kernel = compiled_kernel() if engine in ("auto", "compiled") else None
+    if engine == "compiled" and kernel is None:
+        raise RuntimeError("the compiled warm kernel is not built; reinstall the planner with a C compiler")
+    if kernel is not None:
+        pieces = _rate_sweep_by_routes(kernel, week, lane, start, end, cost_scale, quantity_scale, warm)
+        if pieces is not None:
+            return pieces
+    return _rate_sweep_by_solves(week, lane, start, end, cost_scale, quantity_scale, warm)
+
+
+def _at_rate(week: WeekData, lane: int, rate: int, cost_scale: int, quantity_scale: int) -> Instance:
+    edited = dataclasses.replace(week, lane_cost=_with(week.lane_cost, lane, rate))
+    return assemble_instance(edited, cost_scale=cost_scale, quantity_scale=quantity_scale)
+
+
+def _optimum(inst: Instance, state, rate: int):
+    """An optimal flow of ``inst``, the engine and a feasible potential; raises when there is none."""
+    solution, engine = solve_with(inst, state)
+    if solution.status != OPTIMAL:
+        raise PlannerError(f"the week has no optimal plan at rate {rate} of the swept lane ({solution.status})")
+    res = residual_graph(inst, solution.flow)
+    potential = solution.potential if solution.potential is not None else feasible_potential(inst, res)
+    return solution.flow, engine, res, potential
+
+
+def _rate_sweep_by_routes(kernel, week: WeekData, lane: int, start: int, end: int, cost_scale: int,
+                          quantity_scale: int, warm: WarmState | None = None) -> list[Piece] | None:
+    """One solve at the lane's own rate (kept within the range), then routes both ways (the compiled kernel).
+
+    Above that rate the lane gives up its flow route by route, below it takes
+    more; the two run at once on separate copies. The plans at ``start`` and
+    ``end`` are certified, at the costs the pieces say; None (the caller then
+    re-solves piece by piece) when one is not or the kernel stops early.
+    """
+    pivot = min(max(int(week.lane_cost[lane]), start), end)
+    inst = _at_rate(week, lane, pivot, cost_scale, quantity_scale)
+    flow, engine, _, potential = _optimum(inst, warm, pivot)
+    arc = int(inst.lane_arc[0, lane])
+    carried = int(flow[arc])
+    cost = exact_dot(inst.cost, flow)
+    incidence = Incidence.of(inst.n_nodes, inst.tail, inst.head)
+    # Rising: routes that cost at most end - 1 take units (a bend at end changes nothing inside the range).
+    # Falling: the lane takes units back from routes h -> t costing at most -start - 1 (bends above start).
+    jobs = [(False, carried - int(inst.lower[arc]), end - 1, pivot < end),
+            (True, int(inst.upper[arc]) - carried, -start - 1, start < pivot)]
+
+    def moved(job) -> tuple | None:
+        reverse, units, limit, needed = job
+        final = flow.copy()
+        if not needed or units <= 0:
+            return np.empty(0, np.int64), np.empty(0, np.int64), final
+        routes = _kernel_routes(kernel, inst, incidence, final, potential, arc, reverse, units, limit)
+        if routes is None:
+            return None
+        rates, taken = routes
+        final[arc] = carried + (int(taken.sum()) if reverse else -int(taken.sum()))
+        return rates, taken, final
+
+    with ThreadPoolExecutor(max_workers=2) as pool:  # the kernel releases the GIL
+        up, down = pool.map(moved, jobs)
+    if up is None or down is None or (up[0].shape[0] and up[0][0] < pivot) or (
+            down[0].shape[0] and -down[0][0] > pivot):
+        return None
+    pieces = _pieces_below(start, pivot, carried, cost, -down[0], down[1], engine)
+    pieces += _pieces_above(pivot, end, carried, cost, up[0], up[1], engine if not pieces else REROUTED)
+    pieces = _joined([p for p in pieces if p.end > p.start] or pieces[-1:])
+    for figure, final in ((start, down[2]), (end, up[2])):
+        # The plan at each end of the range proves itself, at the cost the pieces say.
+        last = _at_rate(week, lane, figure, cost_scale, quantity_scale)
+        proof = certify(last, final, feasible_potential(last, residual_graph(last, final)))
+        at = next(p for p in pieces if p.start <= figure <= p.end)
+        if not proof.ok or proof.primal_cost != at.cost_at(figure):
+            return None
+    return pieces
+
+
+def _joined(pieces: list[Piece]) -> list[Piece]:
+    """Neighbouring pieces of equal slope as one (the pivot is no breakpoint unless the slope changes there)."""
+    joined = pieces[:1]
+    for piece in pieces[1:]:
+        if piece.slope == joined[-1].slope:
+            joined[-1] = dataclasses.replace(joined[-1], end=piece.end)
+        else:
+            joined.append(piece)
+    return joined
+
+
+def _kernel_routes(kernel, inst: Instance, incidence: Incidence, final: np.ndarray, potential: np.ndarray, arc: int,
+                   reverse: bool, units: int, limit: int) -> tuple[np.ndarray, np.ndarray] | None:
+    """The kernel's routes (cost, units) for the lane's units; ``final`` becomes the last plan (the lane pinned)."""
+    lower, upper = inst.lower.copy(), inst.upper.copy()
+    lower[arc] = upper[arc] = final[arc]  # pinned: no search takes the lane itself
+    pi = np.array(potential, dtype=np.int64)
+    excess = np.zeros(inst.n_nodes, dtype=np.int64)
+    steps = min(MAX_ROUTES, units)
+    rates, taken = np.empty(steps, np.int64), np.empty(steps, np.int64)
+    count, stats = np.zeros(1, np.int64), np.zeros(2, np.int64)
+    held = [np.ascontiguousarray(a, dtype=np.int64) for a in (
+        inst.tail, inst.head, inst.cost, lower, upper, incidence.first_out, incidence.code)]
+    status = kernel.rate_sweep(
+        inst.n_nodes, *(a.ctypes.data for a in held), final.ctypes.data, pi.ctypes.data, excess.ctypes.data,
+        arc, int(reverse), units, limit, steps, rates.ctypes.data, taken.ctypes.data, count.ctypes.data,
+        stats.ctypes.data)
+    if status != 0:
+        return None
+    return rates[: count[0]], taken[: count[0]]
+
+
+def _pieces_above(pivot: int, end: int, carried: int, cost: int, rates, units, engine: str) -> list[Piece]:
+    """Pieces from ``pivot`` up: the lane gives up units at each route's cost, in rising order."""
     pieces: list[Piece] = []
-    rate, state = start, None
+    piece_start, flow, at_start = pivot, carried, cost
+    for rate, moved in zip(rates.tolist(), units.tolist()):
+        if rate > piece_start:
+            pieces.append(Piece(piece_start, rate, flow, at_start, engine if not pieces else REROUTED))
+            at_start += (rate - piece_start) * flow
+            piece_start = rate
+        flow -= moved
+    pieces.append(Piece(piece_start, end, flow, at_start, engine if not pieces else REROUTED))
+    return pieces
+
+
+def _pieces_below(start: int, pivot: int, carried: int, cost: int, rates, units, engine: str) -> list[Piece]:
+    """Pieces from ``start`` up to ``pivot``: below each bend (falling order) the lane carries more."""
+    pieces: list[Piece] = []  # built from the pivot down, then reversed
+    piece_end, flow, at_end = pivot, carried, cost
+    for rate, moved in zip(rates.tolist(), units.tolist()):
+        if rate < piece_end:
+            at_rate = at_end - (piece_end - rate) * flow
+            pieces.append(Piece(rate, piece_end, flow, at_rate, REROUTED))
+            piece_end, at_end = rate, at_rate
+        flow += moved
+    if start < piece_end:
+        pieces.append(Piece(start, piece_end, flow, at_end - (piece_end - start) * flow, REROUTED))
+    pieces.reverse()
+    if pieces:
+        pieces[0] = dataclasses.replace(pieces[0], engine=engine)
+    return pieces
+
+
+def _rate_sweep_by_solves(week: WeekData, lane: int, start: int, end: int, cost_scale: int,
+                          quantity_scale: int, warm: WarmState | None = None) -> list[Piece]:
+    """One warm solve per piece, its end from the lane's rate range (the reference path)."""
+    pieces: list[Piece] = []
+    rate, state = start, warm
     while True:
-        edited = dataclasses.replace(week, lane_cost=np.where(np.arange(week.n_lanes) == lane, rate, week.lane_cost))
-        inst = assemble_instance(edited, cost_scale=cost_scale, quantity_scale=quantity_scale)
-        solution, engine = solve_with(inst, state)
-        if solution.status != OPTIMAL:
-            raise PlannerError(f"the week has no optimal plan at rate {rate} of the swept lane ({solution.status})")
-        res = residual_graph(inst, solution.flow)
-        potential = solution.potential if solution.potential is not None else feasible_potential(inst, res)
+        inst = _at_rate(week, lane, rate, cost_scale, quantity_scale)
+        flow, engine, res, potential = _optimum(inst, state, rate)
         arc = int(inst.lane_arc[0, lane])
-        ends = rate_ranges(inst, solution.flow, res, potential, [arc])
+        ends = rate_ranges(inst, flow, res, potential, [arc])
         last = int(ends.high[0]) if ends.has_high[0] else end
-        cost = exact_dot(inst.cost, solution.flow)
+        cost = exact_dot(inst.cost, flow)
         piece_start = pieces[-1].end if pieces else start
-        flow = int(solution.flow[arc])
-        pieces.append(Piece(piece_start, min(last, end), flow, cost - (rate - piece_start) * flow, engine))
+        carried = int(flow[arc])
+        pieces.append(Piece(piece_start, min(last, end), carried, cost - (rate - piece_start) * carried, engine))
         if last >= end:
             return pieces
         # The layout never changes along a sweep: a warm state keeps its node lists.
         rate = last + 1
-        state = state_of(inst, solution.flow, potential) if state is None else dataclasses.replace(
-            state, cost=inst.cost, flow=solution.flow, potential=potential)
+        state = _next_state(state, inst, flow, potential)
+
+
+#: The engine of pieces found by giving up the swept lane's flow route by route.
+REROUTED = "rerouted"
+#: Routes the kernel may take in one sweep before the sweep solves piece by piece instead.
+MAX_ROUTES = 1_000_000
 
 
 class NoPlanInSweep(PlannerError):
@@ -144,7 +306,7 @@ RightSlope = Callable[[Instance, np.ndarray, Residual, np.ndarray], "tuple[int, 
 
 
 def capacity_sweep(week: WeekData, lane: int, start: int, end: int, *, cost_scale: int = 10_000,
-                   quantity_scale: int = 1) -> list[Piece]:
+                   quantity_scale: int = 1, warm: WarmState | None = None) -> list[Piece]:
     """The pieces of the optimal cost as lane ``lane``'s capacity goes from ``start`` to ``end`` (scaled units).
 
     The cost is convex and falls (or stays) as the capacity grows; each slope is
@@ -175,11 +337,11 @@ def capacity_sweep(week: WeekData, lane: int, start: int, end: int, *, cost_scal
     def arc_of(inst: Instance) -> int:
         return int(inst.lane_arc[0, lane])
 
-    return _step_sweep(week_at, _capacity_slope(arc_of), start, end, "capacity", cost_scale, quantity_scale)
+    return _step_sweep(week_at, _capacity_slope(arc_of), start, end, "capacity", cost_scale, quantity_scale, warm)
 
 
 def throughput_sweep(week: WeekData, site: int, start: int, end: int, *, cost_scale: int = 10_000,
-                     quantity_scale: int = 1) -> list[Piece]:
+                     quantity_scale: int = 1, warm: WarmState | None = None) -> list[Piece]:
     """The pieces of the optimal cost as warehouse ``site``'s throughput capacity goes from ``start`` to ``end``.
 
     Examples
@@ -204,11 +366,11 @@ def throughput_sweep(week: WeekData, site: int, start: int, end: int, *, cost_sc
         return int(np.flatnonzero((inst.arc_kind == ArcKind.THROUGHPUT) & (inst.arc_ref == site))[0])
 
     return _step_sweep(week_at, _capacity_slope(arc_of), start, end, "throughput capacity", cost_scale,
-                       quantity_scale)
+                       quantity_scale, warm)
 
 
 def demand_sweep(week: WeekData, site: int, start: int, end: int, *, cost_scale: int = 10_000,
-                 quantity_scale: int = 1) -> list[Piece]:
+                 quantity_scale: int = 1, warm: WarmState | None = None) -> list[Piece]:
     """The pieces of the optimal cost as customer ``site``'s demand goes from ``start`` to ``end`` (scaled units).
 
     The cost is convex and rises with the demand; each slope is the customer's
@@ -245,7 +407,7 @@ def demand_sweep(week: WeekData, site: int, start: int, end: int, *, cost_scale:
             return None
         return int(ranges.high[node]), int(ranges.high_units[node])
 
-    return _step_sweep(week_at, right_slope, start, end, "demand", cost_scale, quantity_scale)
+    return _step_sweep(week_at, right_slope, start, end, "demand", cost_scale, quantity_scale, warm)
 
 
 def _check_range(start: int, end: int, what: str) -> None:
@@ -275,10 +437,10 @@ def _capacity_slope(arc_of: Callable[[Instance], int]) -> RightSlope:
 
 
 def _step_sweep(week_at: Callable[[int], WeekData], right_slope: RightSlope, start: int, end: int, what: str,
-                cost_scale: int, quantity_scale: int) -> list[Piece]:
+                cost_scale: int, quantity_scale: int, warm: WarmState | None) -> list[Piece]:
     """Step from ``start`` to ``end`` by the units each exact right slope holds for; join equal slopes."""
     pieces: list[Piece] = []
-    figure, state, promised = start, None, None
+    figure, state, promised = start, warm, None
     while True:
         inst = assemble_instance(week_at(figure), cost_scale=cost_scale, quantity_scale=quantity_scale)
         solution, engine = solve_with(inst, state)
@@ -303,5 +465,11 @@ def _step_sweep(week_at: Callable[[int], WeekData], right_slope: RightSlope, sta
         if step_end >= end:
             return pieces
         promised, figure = cost + slope * (step_end - figure), step_end
-        state = state_of(inst, solution.flow, potential) if state is None else dataclasses.replace(
-            state, cost=inst.cost, flow=solution.flow, potential=potential)
+        state = _next_state(state, inst, solution.flow, potential)
+
+
+def _next_state(state: WarmState | None, inst: Instance, flow: np.ndarray, potential: np.ndarray) -> WarmState:
+    """The warm state of this step's optimum; a state of the same layout keeps its node lists."""
+    if state is None or not same_layout(inst, state):
+        return state_of(inst, flow, potential)
+    return dataclasses.replace(state, cost=inst.cost, flow=flow, potential=potential)

@@ -410,8 +410,11 @@ def sweep(
             period, scaling = sc["period"], Scaling(sc["cost_decimals"], sc["quantity_decimals"])
         snap = read_snapshot(conn, period, scaling)
         names = snapshot_names(conn, snap)
+        base = _base_run(conn, snap, scaling)
     week, names = apply_edits(snap.week, names, edits,
                               cost_decimals=scaling.cost_decimals, quantity_decimals=scaling.quantity_decimals)
+    # The week's stored optimum starts the first solve (warm, certified, cold otherwise).
+    warm = state_of(base.instance, base.flow) if base is not None else None
     cd, qd = scaling.cost_decimals, scaling.quantity_decimals
     figure_decimals, slope_decimals = (cd, qd) if figure == "rate" else (qd, cd)
     start, end = (_scaled(v, figure_decimals, "rate" if figure == "rate" else figure) for v in (low, high))
@@ -419,7 +422,8 @@ def sweep(
     swept = {"rate": core.rate_sweep, "capacity": core.capacity_sweep, "throughput": core.throughput_sweep,
              "demand": core.demand_sweep}[figure]
     try:
-        pieces = swept(week, index, start, end, cost_scale=scaling.cost_scale, quantity_scale=scaling.quantity_scale)
+        pieces = swept(week, index, start, end, cost_scale=scaling.cost_scale, quantity_scale=scaling.quantity_scale,
+                       warm=warm)
     except core.NoPlanInSweep as error:
         at = to_decimal(error.figure, figure_decimals)
         where = f"above {figure} {at}" if error.above else f"at {figure} {at}"

@@ -9,9 +9,17 @@ import pytest
 from hypothesis import given
 from hypothesis import strategies as st
 
+from planner.core.engines import compiled_kernel
 from planner.core.network import assemble_instance
 from planner.core.solve import OPTIMAL, solve_flow
-from planner.core.sweep import NoPlanInSweep, capacity_sweep, demand_sweep, rate_sweep, throughput_sweep
+from planner.core.sweep import (
+    NoPlanInSweep,
+    _rate_sweep_by_routes,
+    capacity_sweep,
+    demand_sweep,
+    rate_sweep,
+    throughput_sweep,
+)
 from planner.core.week import WeekData
 from planner.errors import PlannerError
 from tests.reference_model import optimal_cost
@@ -24,8 +32,16 @@ def at_rate(week: WeekData, lane: int, rate: int) -> WeekData:
     return dataclasses.replace(week, lane_cost=cost)
 
 
-def check_against_highs(week: WeekData, lane: int, start: int, end: int) -> list:
-    pieces = rate_sweep(week, lane, start, end)
+needs_kernel = pytest.mark.skipif(compiled_kernel() is None, reason="the compiled warm kernel is not built")
+ENGINES = ["solves", pytest.param("routes", marks=needs_kernel)]
+
+
+def check_against_highs(week: WeekData, lane: int, start: int, end: int, engine: str = "solves") -> list:
+    if engine == "routes":
+        pieces = _rate_sweep_by_routes(compiled_kernel(), week, lane, start, end, 10_000, 1)
+        assert pieces is not None  # the kernel's last plan certified
+    else:
+        pieces = rate_sweep(week, lane, start, end, engine=engine)
     assert pieces[0].start == start and pieces[-1].end == end
     for before, after in zip(pieces, pieces[1:]):
         assert before.end == after.start  # the pieces meet at each breakpoint
@@ -44,19 +60,39 @@ def check_against_highs(week: WeekData, lane: int, start: int, end: int) -> list
     return pieces
 
 
-@given(week=week_data(feasible=True, lane_minimums=True), data=st.data())
-def test_sweep_pieces_match_highs_at_every_breakpoint_and_between(week: WeekData, data) -> None:
+@pytest.mark.parametrize("engine", ENGINES)
+@given(week=st.one_of(week_data(feasible=True, lane_minimums=True), degenerate_week()), data=st.data())
+def test_sweep_pieces_match_highs_at_every_breakpoint_and_between(engine: str, week: WeekData, data) -> None:
     lane = data.draw(st.integers(0, week.n_lanes - 1))
     start = data.draw(st.integers(-5, 10))
-    check_against_highs(week, lane, start, start + data.draw(st.integers(0, 30)))
+    check_against_highs(week, lane, start, start + data.draw(st.integers(0, 30)), engine)
+
+
+@needs_kernel
+@given(week=st.one_of(week_data(feasible=True, lane_minimums=True), degenerate_week()), data=st.data())
+def test_the_kernel_s_routes_give_the_pieces_of_one_solve_per_piece(week: WeekData, data) -> None:
+    lane = data.draw(st.integers(0, week.n_lanes - 1))
+    start = data.draw(st.integers(-5, 10))
+    end = start + data.draw(st.integers(0, 30))
+    routes = _rate_sweep_by_routes(compiled_kernel(), week, lane, start, end, 10_000, 1)
+    solves = rate_sweep(week, lane, start, end, engine="solves")
+    # the same function: equal costs at every breakpoint of either (zero-width pieces aside)
+    points = sorted({p.start for p in routes + solves} | {end})
+
+    def cost(pieces, x):
+        return next(p for p in pieces if p.start <= x <= p.end).cost_at(x)
+
+    assert [cost(routes, x) for x in points] == [cost(solves, x) for x in points]
+    assert all(p.end > p.start for p in routes) or len(routes) == 1
 
 
 def test_sweep_of_a_lane_shared_with_a_limited_alternative() -> None:
     # Two plants, one customer needing 6; the other lane (rate 9) carries at most 4.
     week = WeekData.from_arrays([0, 0, 2], [0, 1], [2, 2], [5, 9], supply=[10, 10, 0], demand=[0, 0, 6],
                                 lane_capacity=[-1, 4])
-    pieces = check_against_highs(week, 0, 0, 20)
-    assert [(p.start, p.end, p.flow) for p in pieces] == [(0, 9, 6), (9, 20, 2)]
+    for engine in ("solves", "routes") if compiled_kernel() else ("solves",):
+        pieces = check_against_highs(week, 0, 0, 20, engine)
+        assert [(p.start, p.end, p.flow) for p in pieces] == [(0, 9, 6), (9, 20, 2)]
     assert np.all(np.diff([p.flow for p in pieces]) < 0)
 
 
