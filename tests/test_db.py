@@ -150,7 +150,7 @@ def test_embedded_server_is_used_without_a_url(
 
 def test_fresh_database_is_at_head_with_every_table(engine: sa.Engine) -> None:
     with engine.connect() as connection:
-        assert current_revision(connection) == head_revision() == "0010"
+        assert current_revision(connection) == head_revision() == "0011"
         tables = set(sa.inspect(connection).get_table_names())
     assert tables == TABLES | {"alembic_version"}
 

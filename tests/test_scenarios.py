@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 from decimal import Decimal
 
+import numpy as np
 import psycopg
 import pytest
 import sqlalchemy as sa
@@ -386,3 +387,47 @@ def test_solving_several_scenarios_goes_on_past_a_bad_one(engine: sa.Engine, wri
         solved = list(conn.execute(sa.text("SELECT s.name FROM solve_run r JOIN scenario s ON s.id = r.scenario_id "
                                            "WHERE r.status = 'optimal' ORDER BY r.id")).scalars())
     assert solved == ["first", "last"]
+
+
+def test_a_scenario_on_a_linked_horizon_edits_every_week_and_leaves_the_horizon_plan_alone(
+    engine: sa.Engine, write_folder, network_files
+) -> None:
+    from planner.core.edits import WeekNames, parse_edit
+    from planner.database.linked import horizon_snapshots
+
+    loaded_and_solved(write_folder, network_files)
+    assert invoke("solve", "--horizon", "2026-W40..2026-W41").exit_code == 0
+    before = dump(engine, SNAPSHOT_TABLES + WEEK_VIEWS)
+    runs_before = invoke("runs", "--kind", "horizon").output
+    # stock may now carry from week 40 to week 41 at the warehouse: the weeks are linked by the edits
+    edits = ["storage W1 50", "holding W1 0.1", "rate all +10%", "add-lane P2->C2 truck 4.5"]
+    create("stocked", *edits, base="2026-W40..2026-W41")
+    solved = invoke("scenario", "solve", "stocked")
+    assert solved.exit_code == 0, solved.output
+
+    assert dump(engine, SNAPSHOT_TABLES + WEEK_VIEWS) == before  # run_summary keeps the plain horizon run
+    assert invoke("runs", "--kind", "horizon").output.count("2026-W40..2026-W41") == runs_before.count(
+        "2026-W40..2026-W41") + 1
+    with engine.connect() as conn:
+        run = conn.execute(sa.text(
+            "SELECT r.*, EXISTS (SELECT FROM run_pin p WHERE p.run_id = r.id) AS pinned FROM solve_run r "
+            "WHERE r.scenario_id IS NOT NULL")).mappings().one()
+        snaps, merged = horizon_snapshots(conn, ["2026-W40", "2026-W41"], Scaling())
+        modes = dict(conn.execute(sa.text("SELECT id, mode FROM lane")).all())
+        stock_rows = conn.execute(sa.text("SELECT count(*) FROM run_stock WHERE run_id = :r"), {"r": run["id"]}).scalar()
+    assert run["kind"] == "horizon" and run["status"] == "optimal" and run["certificate_ok"] and run["pinned"]
+    assert stock_rows > 0
+    names = WeekNames(merged["site_code"], np.array([modes[i] for i in merged["lane_id"]], dtype=object),
+                      np.full(merged["site_id"].shape[0], None, dtype=object))
+    weeks = [apply_edits(w, names, [parse_edit(e) for e in edits])[0] for w in merged["weeks"]]
+    assert all(w.storage_capacity[list(merged["site_code"]).index("W1")] == 50 for w in weeks)
+    # scipy linprog(method="highs") on both edited weeks linked by stock: the stored cost is its optimum
+    assert run["primal_cost"] * 10_000 == optimal_cost(weeks)
+
+    shown = invoke("scenario", "show", "stocked")
+    assert shown.exit_code == 0 and "on 2026-W40..2026-W41" in shown.output
+    assert "2026-W40..2026-W41" in invoke("scenario", "list").output
+    compared = invoke("compare", "--scenario", "stocked")
+    assert compared.exit_code == 2 and "linked horizon" in compared.output
+    swept = invoke("sweep", "-s", "stocked", "--rate", "P1->W1 road", "--from", "1", "--to", "3")
+    assert swept.exit_code == 2 and "linked horizon" in swept.output

@@ -39,7 +39,7 @@ app.add_typer(scenario_app, name="scenario")
 @scenario_app.command("create")
 def create(
     name: str = typer.Argument(..., metavar="NAME", help="A name of your choice, unique."),
-    base: str = typer.Option(..., "--base", "-b", metavar="WEEK", help="The base week (ISO week, for example 2026-W40)."),
+    base: str = typer.Option(..., "--base", "-b", metavar="WEEK", help="The base week (ISO week, for example 2026-W40), or a linked horizon FIRST..LAST (the edits apply to every week)."),
     edit: Optional[list[str]] = typer.Option(None, "--edit", "-e", metavar="EDIT", help='An edit, for example "close W03" or '
                                              '"rate from P01 +8%" (repeatable).'),
     edits_file: Optional[Path] = typer.Option(None, "--edits-file", metavar="FILE", help="A CSV (action,target,value) or TOML file of edits."),
@@ -49,9 +49,10 @@ def create(
     solve: bool = typer.Option(False, "--solve", help="Solve it right away."),
     database_url: Optional[str] = DATABASE_URL,
 ) -> None:
-    """Store a named what-if on a base week; its edits are checked first, the week is never changed.
+    """Store a named what-if on a base week or linked horizon; its edits are checked first, the weeks are never changed.
 
     Example: planner scenario create no-w03 --base 2026-W52 --edit "close W03" --edit "rate mode rail -5%"
+    (a horizon: --base 2026-W49..2026-W52)
     """
     from planner.database.snapshot import Scaling
     from planner.runs.scenarios import command_line_edits, create_scenario, read_edit_file
@@ -133,7 +134,8 @@ def show(name: str = typer.Argument(..., metavar="NAME", help="Scenario name."),
     from planner.runs.scenarios import scenario_details
 
     sc, edits, runs = scenario_details(engine(database_url), name)
-    say(f"scenario {sc['name']} on {sc['period']} (batch {sc['batch_id']} when made), by {sc['created_by']} "
+    made = f"batch {sc['batch_id']} when made" if sc["last_period"] is None else "a linked horizon"
+    say(f"scenario {sc['name']} on {sc['base']} ({made}), by {sc['created_by']} "
         f"at {sc['created_at']:%Y-%m-%d %H:%M}" + (f": {sc['description']}" if sc["description"] else ""))
     table = Table("#", "edit", "written in", title="Edits, applied in this order")
     for k, e in enumerate(edits, start=1):
@@ -141,7 +143,8 @@ def show(name: str = typer.Argument(..., metavar="NAME", help="Scenario name."),
     console.print(table)
     table = Table("run", "status", "cost", "engine", "batch", title="Runs")
     for r in runs:
-        table.add_row(str(r["run_id"]), r["status"], money(r["cost"]), r["engine"] or "-", str(r["batch_id"]))
+        table.add_row(str(r["run_id"]), r["status"], money(r["cost"]), r["engine"] or "-",
+                      "-" if r["batch_id"] is None else str(r["batch_id"]))
     console.print(table)
 
 

@@ -375,7 +375,7 @@ class RunPin(Base):
 
 
 class Scenario(Base):
-    """A named what-if on a base week: its edits never touch the base snapshot (migration 0009)."""
+    """A named what-if on a base week or linked horizon; its edits never touch the base (migrations 0009, 0011)."""
 
     __tablename__ = "scenario"
 
@@ -383,8 +383,12 @@ class Scenario(Base):
     name: Mapped[str] = mapped_column(sa.Text, unique=True)
     description: Mapped[str | None] = mapped_column(sa.Text)
     period_id: Mapped[int] = mapped_column(sa.ForeignKey("period.id"))
-    #: The batch whose snapshot the edits were checked against.
+    #: The last week of a linked-horizon base (NULL: the base is the week ``period_id``).
+    last_period_id: Mapped[int | None] = mapped_column(sa.ForeignKey("period.id"))
+    #: The batch whose snapshot the edits were checked against (a horizon's first week's).
     batch_id: Mapped[int] = mapped_column(sa.BigInteger, sa.ForeignKey("load_batch.id"))
+    #: A horizon's input when the scenario was made (its weeks' snapshots).
+    base_fingerprint: Mapped[str | None] = mapped_column(sa.Text)
     cost_decimals: Mapped[int]
     quantity_decimals: Mapped[int]
     created_at: Mapped[datetime.datetime] = mapped_column(sa.DateTime(timezone=True), server_default=sa.func.now())

@@ -258,7 +258,7 @@ JOIN period l ON l.id = r.last_period_id
 LEFT JOIN latest_week_run lw ON lw.run_id = r.id
 LEFT JOIN LATERAL (
     SELECT h.id FROM solve_run h
-    WHERE r.kind = 'horizon' AND h.kind = 'horizon' AND h.status = 'optimal'
+    WHERE r.kind = 'horizon' AND h.kind = 'horizon' AND h.status = 'optimal' AND h.scenario_id IS NULL
       AND h.first_period_id = r.first_period_id AND h.last_period_id = r.last_period_id
     ORDER BY h.finished_at DESC, h.id DESC LIMIT 1
 ) lh ON lh.id = r.id

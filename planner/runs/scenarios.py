@@ -24,20 +24,23 @@ import time
 from dataclasses import dataclass
 from decimal import Decimal, InvalidOperation
 from pathlib import Path
+from types import SimpleNamespace
 
 import numpy as np
 from sqlalchemy import Connection, Engine, text
 from sqlalchemy.exc import IntegrityError
 
-from planner.core.edits import ACTIONS, Edit, apply_edits, parse_edit
+from planner.core.edits import ACTIONS, Edit, WeekNames, apply_edits, parse_edit
 from planner.core.engines import state_of
-from planner.core.network import assemble_instance
+from planner.core.network import assemble_instance, time_expand
 from planner.core.optimize import optimize
-from planner.core.week import NONE
+from planner.core.week import NONE, WeekData
+from planner.database.linked import horizon_fingerprint, horizon_snapshots
 from planner.database.reopen import edited_lane_ids, reopen_week, scenario_edits
 from planner.database.results import NULL, RunKey, copy_text_rows, decimal_text, to_decimal
 from planner.database.snapshot import Scaling, current_batch, read_snapshot, run_fingerprint, snapshot_names
 from planner.errors import PlannerError, Problem, ValidationError
+from planner.periods import parse_week_span, week_range
 from planner.runs.weekly import RunSummary, store_and_summarise
 
 __all__ = ["SWEEP_FIGURES", "ScenarioRun", "SweepPiece", "cost_at", "create_scenario", "list_scenarios",
@@ -163,18 +166,24 @@ def create_scenario(
     """
     if not name.strip():
         raise PlannerError("a scenario needs a name")
+    periods = parse_week_span(base) if ".." in base else [base]
+    last_period_id = fingerprint = None
     with engine.connect() as conn:
-        period_id, batch_id, _ = current_batch(conn, base)
-        snap = read_snapshot(conn, base, scaling, batch_id=batch_id)
-        names = snapshot_names(conn, snap)
-    apply_edits(snap.week, names, edits,
-                cost_decimals=scaling.cost_decimals, quantity_decimals=scaling.quantity_decimals)
+        if len(periods) == 1:
+            period_id, batch_id, _ = current_batch(conn, base)
+            snap = read_snapshot(conn, base, scaling, batch_id=batch_id)
+            apply_edits(snap.week, snapshot_names(conn, snap), edits,
+                        cost_decimals=scaling.cost_decimals, quantity_decimals=scaling.quantity_decimals)
+        else:
+            horizon = _edited_horizon(conn, periods, edits, scaling)
+            period_id, last_period_id = horizon.snaps[0].period_id, horizon.snaps[-1].period_id
+            batch_id, fingerprint = horizon.snaps[0].batch_id, horizon_fingerprint(horizon.snaps, scaling)
     try:
         with engine.begin() as conn:
             scenario_id = conn.execute(
-                text("INSERT INTO scenario (name, description, period_id, batch_id, cost_decimals, quantity_decimals) "
-                     "VALUES (:n, :d, :p, :b, :cd, :qd) RETURNING id"),
-                {"n": name, "d": description, "p": period_id, "b": batch_id,
+                text("INSERT INTO scenario (name, description, period_id, last_period_id, batch_id, base_fingerprint, "
+                     "cost_decimals, quantity_decimals) VALUES (:n, :d, :p, :lp, :b, :fp, :cd, :qd) RETURNING id"),
+                {"n": name, "d": description, "p": period_id, "lp": last_period_id, "b": batch_id, "fp": fingerprint,
                  "cd": scaling.cost_decimals, "qd": scaling.quantity_decimals},
             ).scalar_one()
             if edits:
@@ -191,7 +200,9 @@ def create_scenario(
 
 def _scenario(conn: Connection, name: str):
     row = conn.execute(
-        text("SELECT s.*, p.code AS period FROM scenario s JOIN period p ON p.id = s.period_id WHERE s.name = :n"),
+        text("SELECT s.*, p.code AS period, lp.code AS last_period, "
+             "p.code || coalesce('..' || lp.code, '') AS base FROM scenario s JOIN period p ON p.id = s.period_id "
+             "LEFT JOIN period lp ON lp.id = s.last_period_id WHERE s.name = :n"),
         {"n": name},
     ).mappings().first()
     if row is None:
@@ -217,6 +228,9 @@ def solve_scenario(engine: Engine, name: str, *, warm: bool = True) -> ScenarioR
     start = time.perf_counter()
     with engine.connect() as conn:
         sc, edits = _scenario(conn, name)
+    if sc["last_period"] is not None:
+        return _solve_horizon_scenario(engine, sc, edits, start)
+    with engine.connect() as conn:
         period = sc["period"]
         scaling = Scaling(sc["cost_decimals"], sc["quantity_decimals"])
         period_id, batch_id, snapshot_fp = current_batch(conn, period)
@@ -248,6 +262,69 @@ def solve_scenario(engine: Engine, name: str, *, warm: bool = True) -> ScenarioR
     )
     return ScenarioRun(name, summary, outcome.engine if outcome.ok else None,
                        None if base is None else base.run_id, note)
+
+
+@dataclass(frozen=True)
+class _Horizon:
+    """A linked horizon's snapshots on one site and lane list, with a scenario's edits applied to every week."""
+
+    snaps: list
+    merged: dict
+    weeks: list[WeekData]
+    names: WeekNames
+    lane_present: np.ndarray
+
+
+def _edited_horizon(conn: Connection, periods: list[str], edits: list[Edit], scaling: Scaling) -> _Horizon:
+    """The current snapshots of ``periods`` with ``edits`` applied to each week (checked like a week's)."""
+    snaps, merged = horizon_snapshots(conn, periods, scaling)
+    site_id, lane_id = merged["site_id"], merged["lane_id"]
+    mode = np.empty(lane_id.shape[0], dtype=object)
+    region = np.full(site_id.shape[0], None, dtype=object)
+    for snap in snaps:
+        names = snapshot_names(conn, snap)
+        mode[np.searchsorted(lane_id, snap.lane_id)] = names.lane_mode
+        region[np.searchsorted(site_id, snap.site_id)] = names.site_region
+    base_names = WeekNames(merged["site_code"], mode, region)
+    weeks, names = [], base_names
+    for week in merged["weeks"]:
+        edited, names = apply_edits(week, base_names, edits, cost_decimals=scaling.cost_decimals,
+                                    quantity_decimals=scaling.quantity_decimals)
+        weeks.append(edited)
+    added = weeks[0].n_lanes - lane_id.shape[0]  # added lanes exist in every week of the horizon
+    present = np.hstack([merged["lane_present"], np.ones((len(weeks), added), dtype=bool)])
+    return _Horizon(snaps, merged, weeks, names, present)
+
+
+def _solve_horizon_scenario(engine: Engine, sc, edits: list[Edit], start: float) -> ScenarioRun:
+    """A scenario on a linked horizon: its edits in every week, solved cold as one run tagged with it."""
+    name, scaling = sc["name"], Scaling(sc["cost_decimals"], sc["quantity_decimals"])
+    periods = week_range(sc["period"], sc["last_period"])
+    with engine.connect() as conn:
+        horizon = _edited_horizon(conn, periods, edits, scaling)
+        merged = horizon.merged
+        ids = SimpleNamespace(lane_id=merged["lane_id"], site_id=merged["site_id"])
+        lane_ids = edited_lane_ids(conn, ids, horizon.weeks[0], horizon.names.lane_mode, register=True)
+        conn.commit()
+    base_fingerprint = horizon_fingerprint(horizon.snaps, scaling)
+    note = "" if sc["base_fingerprint"] in (None, base_fingerprint) else (
+        f"a week of the base horizon {sc['base']} was reloaded since the scenario was made")
+    inst = time_expand(horizon.weeks, cost_scale=scaling.cost_scale, quantity_scale=scaling.quantity_scale)
+    outcome = optimize(inst, site_codes=merged["site_code"], lane_labels=horizon.names.lane_keys(horizon.weeks[0]),
+                       period_codes=periods)
+    fingerprint = hashlib.sha256((base_fingerprint + "|" + "\n".join(e.text() for e in edits)).encode()).hexdigest()
+    key = RunKey("horizon", None, horizon.snaps[0].period_id, horizon.snaps[-1].period_id, None, fingerprint,
+                 scenario_id=int(sc["id"]))
+
+    def pin(conn: Connection, run_id: int) -> None:
+        conn.execute(text("INSERT INTO run_pin (run_id, note) VALUES (:r, :n)"), {"r": run_id, "n": f"scenario {name}"})
+
+    summary = store_and_summarise(
+        engine, key, scaling, inst, outcome, start, label=f"{sc['base']} {name}", periods=periods,
+        site_ids=merged["site_id"], lane_ids=lane_ids, site_kind=merged["site_kind"],
+        lane_present=horizon.lane_present, also_store=pin,
+    )
+    return ScenarioRun(name, summary, outcome.engine if outcome.ok else None, None, note)
 
 
 def _base_note(conn: Connection, sc, batch_id: int) -> str:
@@ -298,10 +375,10 @@ def list_scenarios(engine: Engine) -> list[dict]:
     """Every scenario with its base week, edits, who made it, and its latest run."""
     with engine.connect() as conn:
         rows = conn.execute(text(
-            "SELECT s.name, p.code AS base, s.description, s.created_by, s.created_at, "
+            "SELECT s.name, p.code || coalesce('..' || lp.code, '') AS base, s.description, s.created_by, s.created_at, "
             "(SELECT count(*) FROM scenario_edit e WHERE e.scenario_id = s.id) AS edits, "
             "r.id AS run_id, r.status, r.primal_cost AS cost, r.engine "
-            "FROM scenario s JOIN period p ON p.id = s.period_id "
+            "FROM scenario s JOIN period p ON p.id = s.period_id LEFT JOIN period lp ON lp.id = s.last_period_id "
             "LEFT JOIN LATERAL (SELECT * FROM solve_run sr WHERE sr.scenario_id = s.id "
             "ORDER BY sr.id DESC LIMIT 1) r ON true ORDER BY s.name"
         )).mappings()
@@ -334,6 +411,9 @@ def scenario_runs(engine: Engine, name: str) -> tuple[int, int]:
     """
     with engine.connect() as conn:
         sc, _ = _scenario(conn, name)
+        if sc["last_period"] is not None:
+            raise PlannerError(f"scenario {name!r} is on a linked horizon ({sc['base']}); comparisons take runs of "
+                               "one week: compare week runs, or read its run with `planner report --run ID`")
         run = conn.execute(text("SELECT id FROM solve_run WHERE scenario_id = :s AND status = 'optimal' "
                                 "ORDER BY id DESC LIMIT 1"), {"s": sc["id"]}).scalar()
         base = conn.execute(text("SELECT run_id FROM latest_week_run WHERE period_id = :p"),
@@ -407,6 +487,9 @@ def sweep(
         edits: list[Edit] = []
         if scenario is not None:
             sc, edits = _scenario(conn, scenario)
+            if sc["last_period"] is not None:
+                raise PlannerError(f"scenario {scenario!r} is on a linked horizon ({sc['base']}); a sweep varies a "
+                                   "figure of one week")
             period, scaling = sc["period"], Scaling(sc["cost_decimals"], sc["quantity_decimals"])
         snap = read_snapshot(conn, period, scaling)
         names = snapshot_names(conn, snap)
