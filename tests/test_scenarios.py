@@ -431,3 +431,37 @@ def test_a_scenario_on_a_linked_horizon_edits_every_week_and_leaves_the_horizon_
     assert compared.exit_code == 2 and "linked horizon" in compared.output
     swept = invoke("sweep", "-s", "stocked", "--rate", "P1->W1 road", "--from", "1", "--to", "3")
     assert swept.exit_code == 2 and "linked horizon" in swept.output
+
+
+def test_a_scenario_run_s_lane_views_read_its_own_lane_figures(engine: sa.Engine, write_folder, network_files) -> None:
+    loaded_and_solved(write_folder, network_files)
+    create("own-figures", "rate to C2 +40%", "capacity P1->W1 road 50", "add-lane P2->C2 truck 4.5",
+           "add-lane P1->C3 truck 9")
+    run = solve_scenario(engine, "own-figures").summary.run_id
+    with engine.connect() as conn:
+        lanes = conn.execute(sa.text("SELECT * FROM lane_flow_of_run(:r)"), {"r": run}).mappings().all()
+        figures = {r.lane_id: r for r in conn.execute(sa.text("SELECT * FROM run_lane_rate(:r)"), {"r": run})}
+        lane_cost = conn.execute(sa.text("SELECT sum(cost_a) FROM compare_cost(:r, :r)"), {"r": run}).scalar()
+        binding = conn.execute(sa.text("SELECT label, capacity FROM binding_capacity_of_run(:r) WHERE kind = 'lane'"),
+                               {"r": run}).all()
+        limits = conn.execute(sa.text("SELECT label, unit_cost FROM limit_value_of_run(:r) WHERE origin IS NOT NULL"),
+                              {"r": run}).all()
+    by_label = {r["label"]: r for r in lanes}
+    # every lane the run was solved with, once, with the figures it was solved with
+    assert sorted(r["lane_id"] for r in lanes) == sorted(figures)
+    assert {"P2->C2 truck", "P1->C3 truck"} <= set(by_label)
+    for r in lanes:
+        assert (r["unit_cost"], r["capacity"], r["min_quantity"]) == (
+            figures[r["lane_id"]].unit_cost, figures[r["lane_id"]].capacity, figures[r["lane_id"]].min_quantity)
+    assert by_label["W1->C2"]["unit_cost"] == Decimal("2.1") and by_label["P1->W1 road"]["capacity"] == 50
+    # reduced-cost optimality on the derived reduced costs (common practice, no source: complementary slackness)
+    for r in lanes:
+        if r["capacity"] is None or r["flow"] < r["capacity"]:
+            assert r["reduced_cost"] >= 0, r
+        if r["flow"] > r["min_quantity"]:
+            assert r["reduced_cost"] <= 0, r
+    assert sum(r["cost"] for r in lanes) == lane_cost
+    for label, capacity in binding:
+        assert capacity == by_label[label]["capacity"]
+    for label, unit_cost in limits:
+        assert unit_cost == by_label[label]["unit_cost"]
