@@ -104,6 +104,22 @@ static int64_t previous(const network *g, int64_t code) {
     return (code & 1) ? g->head[code >> 1] : g->tail[code >> 1];
 }
 
+/* Push as much as the path s -> t (pred[v]: the incidence that reached v), the excess and the deficit allow. */
+static void push_path(const network *g, const int64_t *pred, int64_t s, int64_t t) {
+    int64_t delta = g->excess[s] < -g->excess[t] ? g->excess[s] : -g->excess[t];
+    for (int64_t v = t; v != s; v = previous(g, pred[v])) {
+        int64_t code = pred[v], a = code >> 1;
+        int64_t cap = (code & 1) ? g->flow[a] - g->lower[a] : g->upper[a] - g->flow[a];
+        if (cap < delta) delta = cap;
+    }
+    for (int64_t v = t; v != s; v = previous(g, pred[v])) {
+        int64_t code = pred[v], a = code >> 1;
+        g->flow[a] += (code & 1) ? -delta : delta;
+    }
+    g->excess[s] -= delta;
+    g->excess[t] += delta;
+}
+
 /* Lower the potentials of the settled nodes, then push along the path s -> t. */
 static int augment(const network *g, workspace *w, int64_t s, int64_t t) {
     int64_t far = w->dist[t];
@@ -111,18 +127,7 @@ static int augment(const network *g, workspace *w, int64_t s, int64_t t) {
         int64_t v = w->settled[i];
         if (__builtin_add_overflow(g->pi[v], w->dist[v] - far, &g->pi[v])) return ROUTE_OVERFLOW;
     }
-    int64_t delta = g->excess[s] < -g->excess[t] ? g->excess[s] : -g->excess[t];
-    for (int64_t v = t; v != s; v = previous(g, w->pred[v])) {
-        int64_t code = w->pred[v], a = code >> 1;
-        int64_t cap = (code & 1) ? g->flow[a] - g->lower[a] : g->upper[a] - g->flow[a];
-        if (cap < delta) delta = cap;
-    }
-    for (int64_t v = t; v != s; v = previous(g, w->pred[v])) {
-        int64_t code = w->pred[v], a = code >> 1;
-        g->flow[a] += (code & 1) ? -delta : delta;
-    }
-    g->excess[s] -= delta;
-    g->excess[t] += delta;
+    push_path(g, w->pred, s, t);
     return 0;
 }
 
@@ -328,22 +333,6 @@ static int tight_path(const network *g, depth_first *d, int64_t s, int64_t t) {
     return 0;
 }
 
-/* Push as much as the tight path s -> t (pred[]), the excess and the deficit allow. */
-static void push_tight(const network *g, const depth_first *d, int64_t s, int64_t t) {
-    int64_t delta = g->excess[s] < -g->excess[t] ? g->excess[s] : -g->excess[t];
-    for (int64_t v = t; v != s; v = previous(g, d->pred[v])) {
-        int64_t code = d->pred[v], a = code >> 1;
-        int64_t cap = (code & 1) ? g->flow[a] - g->lower[a] : g->upper[a] - g->flow[a];
-        if (cap < delta) delta = cap;
-    }
-    for (int64_t v = t; v != s; v = previous(g, d->pred[v])) {
-        int64_t code = d->pred[v], a = code >> 1;
-        g->flow[a] += (code & 1) ? -delta : delta;
-    }
-    g->excess[s] -= delta;
-    g->excess[t] += delta;
-}
-
 /*
  * The pieces of a rate sweep (planner.core.sweep): how lane arc `lane` (t -> h)
  * gives up its flow as its rate rises (reverse = 0), or takes more as its rate
@@ -420,7 +409,7 @@ int planner_warm_rate_sweep(
             if (!found_path) break;
             if (*n_out >= max_steps) { status = ROUTE_BUDGET; break; }
             before = excess[t];
-            push_tight(&g, &d, t, h);
+            push_path(&g, d.pred, t, h);
             out_rate[*n_out] = rate;
             out_units[(*n_out)++] = before - excess[t];
         }
