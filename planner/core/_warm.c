@@ -139,6 +139,22 @@ static void forget(workspace *w) {
     }
 }
 
+/* The search arrays for n nodes, every distance unset; -1 when memory runs out (close_workspace frees). */
+static int open_workspace(workspace *w, int64_t n) {
+    w->dist = malloc((size_t)n * sizeof(int64_t));
+    w->pred = malloc((size_t)n * sizeof(int64_t));
+    w->touched = malloc((size_t)n * sizeof(int64_t));
+    w->settled = malloc((size_t)n * sizeof(int64_t));
+    w->done = calloc((size_t)n, 1);
+    if (!w->dist || !w->pred || !w->touched || !w->settled || !w->done) return ROUTE_NO_MEMORY;
+    for (int64_t v = 0; v < n; v++) w->dist[v] = -1;
+    return 0;
+}
+
+static void close_workspace(workspace *w) {
+    free(w->dist); free(w->pred); free(w->touched); free(w->settled); free(w->done); free(w->h.items);
+}
+
 int planner_warm_route(
     int64_t n, const int64_t *tail, const int64_t *head, const int64_t *cost, const int64_t *lower,
     const int64_t *upper, const int64_t *first_out, const int64_t *inc,
@@ -148,13 +164,7 @@ int planner_warm_route(
     network g = {n, tail, head, cost, lower, upper, first_out, inc, flow, pi, excess};
     workspace w = {0};
     int status = ROUTE_BALANCED;
-    w.dist = malloc((size_t)n * sizeof(int64_t));
-    w.pred = malloc((size_t)n * sizeof(int64_t));
-    w.touched = malloc((size_t)n * sizeof(int64_t));
-    w.settled = malloc((size_t)n * sizeof(int64_t));
-    w.done = calloc((size_t)n, 1);
-    if (!w.dist || !w.pred || !w.touched || !w.settled || !w.done) { status = ROUTE_NO_MEMORY; goto done; }
-    for (int64_t v = 0; v < n; v++) w.dist[v] = -1;
+    if (open_workspace(&w, n)) { status = ROUTE_NO_MEMORY; goto done; }
     for (int64_t i = 0; i < n_sources && status == ROUTE_BALANCED; i++) {
         int64_t s = sources[i];
         while (excess[s] > 0) {
@@ -175,7 +185,7 @@ int planner_warm_route(
         }
     }
 done:
-    free(w.dist); free(w.pred); free(w.touched); free(w.settled); free(w.done); free(w.h.items);
+    close_workspace(&w);
     return status;
 }
 
@@ -366,20 +376,11 @@ int planner_warm_rate_sweep(
     int status = ROUTE_BALANCED;
     int64_t t = reverse ? head[lane] : tail[lane], h = reverse ? tail[lane] : head[lane];  /* s and z above */
     *n_out = 0;
-    w.dist = malloc((size_t)n * sizeof(int64_t));
-    w.pred = malloc((size_t)n * sizeof(int64_t));
-    w.touched = malloc((size_t)n * sizeof(int64_t));
-    w.settled = malloc((size_t)n * sizeof(int64_t));
-    w.done = calloc((size_t)n, 1);
     d.seen = calloc((size_t)n, sizeof(int64_t));
     d.cur = malloc((size_t)n * sizeof(int64_t));
     d.stack = malloc((size_t)n * sizeof(int64_t));
     d.pred = malloc((size_t)n * sizeof(int64_t));
-    if (!w.dist || !w.pred || !w.touched || !w.settled || !w.done || !d.seen || !d.cur || !d.stack || !d.pred) {
-        status = ROUTE_NO_MEMORY;
-        goto done;
-    }
-    for (int64_t v = 0; v < n; v++) w.dist[v] = -1;
+    if (open_workspace(&w, n) || !d.seen || !d.cur || !d.stack || !d.pred) { status = ROUTE_NO_MEMORY; goto done; }
     excess[t] += units;
     excess[h] -= units;
     while (excess[t] > 0 && status == ROUTE_BALANCED) {
@@ -417,7 +418,7 @@ int planner_warm_rate_sweep(
     excess[h] += excess[t];  /* units not given up stay on the lane */
     excess[t] = 0;
 done:
-    free(w.dist); free(w.pred); free(w.touched); free(w.settled); free(w.done); free(w.h.items);
+    close_workspace(&w);
     free(d.seen); free(d.cur); free(d.stack); free(d.pred);
     return status;
 }
