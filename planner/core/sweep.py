@@ -5,14 +5,16 @@ function of one lane's rate ``c``: the minimum over plans of
 ``fixed cost + c * flow on the lane``. On each piece one plan is optimal and the
 slope is that plan's flow on the lane [1]_. Every number is an exact integer.
 
-The sweep solves once, at the start of the range, and then gives up the lane's
-flow route by route in the compiled kernel (``_warm.c``): with the lane held
-fixed, the cheapest other route from its origin to its destination (successive
-shortest paths on the residual graph, which keep the plan optimal for the flow
-the lane still carries [2]_) costs ``D``, so above rate ``D`` the plan moves
-as many units to it as the route can take; the routes come in order of cost,
-and each distinct cost is a breakpoint. The last plan is certified at the end
-of the range, at the cost the pieces say; if it is not (or the kernel is not
+The sweep solves once, at the lane's own rate (kept within the range), and
+then moves the lane's flow route by route in the compiled kernel (``_warm.c``),
+upwards and downwards at once: with the lane held fixed, the cheapest other
+route from its origin to its destination (successive shortest paths on the
+residual graph, which keep the plan optimal for the flow the lane still
+carries [2]_) costs ``D``, so above rate ``D`` the plan moves as many units to
+it as the route can take; below the own rate, the lane takes units back from
+the cheapest routes the other way. Routes come in order of cost, and each
+distinct cost is a breakpoint. The plans at both ends of the range are
+certified, at the costs the pieces say; if one is not (or the kernel is not
 built), the sweep falls back to its reference path: one warm solve per piece,
 each piece ending where the lane's rate range under its plan ends
 (:func:`planner.core.rates.rate_ranges`).
@@ -108,7 +110,8 @@ def rate_sweep(week: WeekData, lane: int, start: int, end: int, *, cost_scale: i
     Raises
     ------
     PlannerError
-        When ``start > end``, or the week has no optimal plan at some rate.
+        When ``start > end``, or the week has no optimal plan at some rate
+        (:class:`NoPlanInSweep`).
 
     Examples
     --------
@@ -138,11 +141,14 @@ def _at_rate(week: WeekData, lane: int, rate: int, cost_scale: int, quantity_sca
     return assemble_instance(edited, cost_scale=cost_scale, quantity_scale=quantity_scale)
 
 
-def _optimum(inst: Instance, state, rate: int):
-    """An optimal flow of ``inst``, the engine and a feasible potential; raises when there is none."""
+def _optimum(inst: Instance, state: WarmState | None, what: str, figure: int):
+    """An optimal flow of ``inst``, its engine, residual graph and a feasible potential.
+
+    Raises :class:`NoPlanInSweep` when the week has no optimal plan at ``what`` ``figure``.
+    """
     solution, engine = solve_with(inst, state)
     if solution.status != OPTIMAL:
-        raise PlannerError(f"the week has no optimal plan at rate {rate} of the swept lane ({solution.status})")
+        raise NoPlanInSweep(f"the week has no optimal plan at {what} {figure} ({solution.status})", figure, False)
     res = residual_graph(inst, solution.flow)
     potential = solution.potential if solution.potential is not None else feasible_potential(inst, res)
     return solution.flow, engine, res, potential
@@ -159,7 +165,7 @@ def _rate_sweep_by_routes(kernel, week: WeekData, lane: int, start: int, end: in
     """
     pivot = min(max(int(week.lane_cost[lane]), start), end)
     inst = _at_rate(week, lane, pivot, cost_scale, quantity_scale)
-    flow, engine, _, potential = _optimum(inst, warm, pivot)
+    flow, engine, _, potential = _optimum(inst, warm, "rate", pivot)
     arc = int(inst.lane_arc[0, lane])
     carried = int(flow[arc])
     cost = exact_dot(inst.cost, flow)
@@ -270,7 +276,7 @@ def _rate_sweep_by_solves(week: WeekData, lane: int, start: int, end: int, cost_
     rate, state = start, warm
     while True:
         inst = _at_rate(week, lane, rate, cost_scale, quantity_scale)
-        flow, engine, res, potential = _optimum(inst, state, rate)
+        flow, engine, res, potential = _optimum(inst, state, "rate", rate)
         arc = int(inst.lane_arc[0, lane])
         ends = rate_ranges(inst, flow, res, potential, [arc])
         last = int(ends.high[0]) if ends.has_high[0] else end
@@ -443,16 +449,12 @@ def _step_sweep(week_at: Callable[[int], WeekData], right_slope: RightSlope, sta
     figure, state, promised = start, warm, None
     while True:
         inst = assemble_instance(week_at(figure), cost_scale=cost_scale, quantity_scale=quantity_scale)
-        solution, engine = solve_with(inst, state)
-        if solution.status != OPTIMAL:
-            raise NoPlanInSweep(f"the week has no optimal plan at {what} {figure} ({solution.status})", figure, False)
-        cost = exact_dot(inst.cost, solution.flow)
+        flow, engine, res, potential = _optimum(inst, state, what, figure)
+        cost = exact_dot(inst.cost, flow)
         if promised is not None and cost != promised:
             raise PlannerError(f"internal error: the sweep expected a cost of {promised} at {what} {figure}, "
                                f"a re-solve gives {cost}")
-        res = residual_graph(inst, solution.flow)
-        potential = solution.potential if solution.potential is not None else feasible_potential(inst, res)
-        right = right_slope(inst, solution.flow, res, potential)
+        right = right_slope(inst, flow, res, potential)
         if right is None:
             raise NoPlanInSweep(f"the week has no plan above {what} {figure}: one more unit cannot be had at any cost",
                                 figure, True)
@@ -465,7 +467,7 @@ def _step_sweep(week_at: Callable[[int], WeekData], right_slope: RightSlope, sta
         if step_end >= end:
             return pieces
         promised, figure = cost + slope * (step_end - figure), step_end
-        state = _next_state(state, inst, solution.flow, potential)
+        state = _next_state(state, inst, flow, potential)
 
 
 def _next_state(state: WarmState | None, inst: Instance, flow: np.ndarray, potential: np.ndarray) -> WarmState:
