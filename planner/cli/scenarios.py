@@ -218,12 +218,14 @@ def comparison_table(result, name: str, rows: int) -> Table:
     return table
 
 
-#: Per figure swept: its key in CSV/JSON, the slope's key and its column title.
+#: Per figure swept: the slope's key in CSV/JSON, its column title, the sign
+#: that turns the cost's slope into it (a capacity's slope is minus the saving),
+#: and the table title's words for the figure.
 _SWEEP_COLUMNS = {
-    "rate": ("rate", "flow", "flow on the lane (slope)"),
-    "capacity": ("capacity", "saving_per_unit", "saving of one more unit"),
-    "throughput": ("throughput", "saving_per_unit", "saving of one more unit"),
-    "demand": ("demand", "cost_per_unit", "cost of one more unit"),
+    "rate": ("flow", "flow on the lane (slope)", 1, "the rate of"),
+    "capacity": ("saving_per_unit", "saving of one more unit", -1, "the capacity of"),
+    "throughput": ("saving_per_unit", "saving of one more unit", -1, "the throughput capacity of"),
+    "demand": ("cost_per_unit", "cost of one more unit", 1, "the demand of"),
 }
 
 
@@ -265,8 +267,7 @@ def sweep(
                            "or --demand CUSTOMER")
     (figure, target), = chosen.items()
     pieces = sweep_figure(engine(database_url), figure, target, low, high, period=period, scenario=scenario)
-    key, slope_key, slope_title = _SWEEP_COLUMNS[figure]
-    sign = 1 if figure in ("rate", "demand") else -1  # a capacity's slope is minus the saving
+    slope_key, slope_title, sign, what = _SWEEP_COLUMNS[figure]
 
     def value(text_: str) -> Decimal:
         try:
@@ -275,9 +276,9 @@ def sweep(
             raise PlannerError(f"--at {text_!r} is not a number") from None
 
     grid = [(value(x), *cost_at(pieces, value(x))) for x in at]
-    rows = [{f"{key}_from": p.start, f"{key}_to": p.end, slope_key: _signed(sign, p.slope), "cost_from": p.cost_from,
-             "cost_to": p.cost_to} for p in pieces]
-    grid_rows = [{key: x, "cost": cost, slope_key: _signed(sign, slope)} for x, cost, slope in grid]
+    rows = [{f"{figure}_from": p.start, f"{figure}_to": p.end, slope_key: _signed(sign, p.slope),
+             "cost_from": p.cost_from, "cost_to": p.cost_to} for p in pieces]
+    grid_rows = [{figure: x, "cost": cost, slope_key: _signed(sign, slope)} for x, cost, slope in grid]
     if output_format == OutputFormat.json:
         from planner.reports.formats import json_value
 
@@ -291,11 +292,17 @@ def sweep(
         shown = grid_rows if at else rows
         print(pd.DataFrame(shown, columns=list(shown[0])).to_csv(index=False), end="")
     else:
-        console.print(_sweep_table(figure, target, pieces, sign, slope_title))
+        table = Table(f"{figure} from", f"{figure} to", slope_title, "cost from", "cost to",
+                      title=f"Optimal cost as {what} {target} varies", caption="breakpoints are exact")
+        for row in rows:
+            table.add_row(_figure_text(figure, row[f"{figure}_from"]), _figure_text(figure, row[f"{figure}_to"]),
+                          _slope_text(figure, row[slope_key]), money(row["cost_from"]), money(row["cost_to"]))
+        console.print(table)
         if grid:
             table = Table(figure, slope_title, "optimal cost", title="At the figures asked for")
             for row in grid_rows:
-                table.add_row(*_figure_texts(figure, row[key], row[slope_key]), money(row["cost"]))
+                table.add_row(_figure_text(figure, row[figure]), _slope_text(figure, row[slope_key]),
+                              money(row["cost"]))
             console.print(table)
 
 
@@ -304,19 +311,11 @@ def _signed(sign: int, slope):
     return slope if sign > 0 else 0 - slope
 
 
-def _figure_texts(figure: str, value, slope) -> tuple[str, str]:
-    """A swept figure and a slope for a table: a rate and money per unit as money, units as units."""
-    if figure == "rate":
-        return number(value), units(slope)
-    return units(value), number(slope)
+def _figure_text(figure: str, value) -> str:
+    """A swept figure for a table: a rate as money, a capacity or a demand as units."""
+    return number(value) if figure == "rate" else units(value)
 
 
-def _sweep_table(figure: str, target: str, pieces, sign: int, slope_title: str) -> Table:
-    what = {"rate": "the rate of", "capacity": "the capacity of", "throughput": "the throughput capacity of",
-            "demand": "the demand of"}[figure]
-    table = Table(f"{figure} from", f"{figure} to", slope_title, "cost from", "cost to",
-                  title=f"Optimal cost as {what} {target} varies", caption="breakpoints are exact")
-    for p in pieces:
-        start, slope = _figure_texts(figure, p.start, _signed(sign, p.slope))
-        table.add_row(start, _figure_texts(figure, p.end, 0)[0], slope, money(p.cost_from), money(p.cost_to))
-    return table
+def _slope_text(figure: str, slope) -> str:
+    """A slope for a table: a lane's flow as units, a saving or cost per unit as money."""
+    return units(slope) if figure == "rate" else number(slope)
