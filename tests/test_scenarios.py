@@ -292,6 +292,10 @@ def test_sweep_errors_name_the_figure(engine: sa.Engine, write_folder, network_f
     assert out.exit_code == 2 and "name one figure to vary" in out.output
     out = invoke("sweep", "-p", "2026-W40", "--capacity", "P1->W1 road", "--from", "0", "--to", "5", "--at", "9")
     assert out.exit_code == 2 and "9 lies outside the sweep" in out.output
+    out = invoke("sweep", "-p", "2026-W40", "--demand", "C3", "--from", "inf", "--to", "5")
+    assert out.exit_code == 2 and "demand 'inf' is not a number" in out.output
+    out = invoke("sweep", "-p", "2026-W40", "--demand", "C3", "--from", "0.5", "--to", "5")
+    assert out.exit_code == 2 and "demand '0.5' has more than 0 decimals" in out.output
 
 
 def test_comparison_html_holds_the_same_rows_as_the_comparison(

@@ -252,7 +252,7 @@ def solve_scenario(engine: Engine, name: str, *, warm: bool = True) -> ScenarioR
     key = RunKey("week", period_id, period_id, period_id, batch_id, fingerprint, scenario_id=int(sc["id"]))
 
     def also_store(conn: Connection, run_id: int) -> None:
-        conn.execute(text("INSERT INTO run_pin (run_id, note) VALUES (:r, :n)"), {"r": run_id, "n": f"scenario {name}"})
+        _pin_run(conn, run_id, name)
         _store_lane_edits(conn, run_id, snap.week, week, lane_ids, scaling)
 
     summary = store_and_summarise(
@@ -316,15 +316,17 @@ def _solve_horizon_scenario(engine: Engine, sc, edits: list[Edit], start: float)
     key = RunKey("horizon", None, horizon.snaps[0].period_id, horizon.snaps[-1].period_id, None, fingerprint,
                  scenario_id=int(sc["id"]))
 
-    def pin(conn: Connection, run_id: int) -> None:
-        conn.execute(text("INSERT INTO run_pin (run_id, note) VALUES (:r, :n)"), {"r": run_id, "n": f"scenario {name}"})
-
     summary = store_and_summarise(
         engine, key, scaling, inst, outcome, start, label=f"{sc['base']} {name}", periods=periods,
         site_ids=merged["site_id"], lane_ids=lane_ids, site_kind=merged["site_kind"],
-        lane_present=horizon.lane_present, also_store=pin,
+        lane_present=horizon.lane_present, also_store=lambda conn, run_id: _pin_run(conn, run_id, name),
     )
     return ScenarioRun(name, summary, outcome.engine if outcome.ok else None, None, note)
+
+
+def _pin_run(conn: Connection, run_id: int, scenario: str) -> None:
+    """Pin a scenario's run in the transaction that stores it, so that retention keeps it."""
+    conn.execute(text("INSERT INTO run_pin (run_id, note) VALUES (:r, :n)"), {"r": run_id, "n": f"scenario {scenario}"})
 
 
 def _base_note(conn: Connection, sc, batch_id: int) -> str:
@@ -500,7 +502,7 @@ def sweep(
     warm = state_of(base.instance, base.flow) if base is not None else None
     cd, qd = scaling.cost_decimals, scaling.quantity_decimals
     figure_decimals, slope_decimals = (cd, qd) if figure == "rate" else (qd, cd)
-    start, end = (_scaled(v, figure_decimals, "rate" if figure == "rate" else figure) for v in (low, high))
+    start, end = (_scaled(v, figure_decimals, figure) for v in (low, high))
     index = _sweep_target(week, names, figure, target, period)
     swept = {"rate": core.rate_sweep, "capacity": core.capacity_sweep, "throughput": core.throughput_sweep,
              "demand": core.demand_sweep}[figure]
@@ -553,7 +555,9 @@ def _scaled(value: str, decimals: int, what: str) -> int:
     try:
         scaled = Decimal(value).scaleb(decimals)
     except InvalidOperation:
-        raise PlannerError(f"{what} {value!r} is not a number") from None
-    if not scaled.is_finite() or scaled != scaled.to_integral_value():
+        scaled = None
+    if scaled is None or not scaled.is_finite():
+        raise PlannerError(f"{what} {value!r} is not a number")
+    if scaled != scaled.to_integral_value():
         raise PlannerError(f"{what} {value!r} has more than {decimals} decimals")
     return int(scaled)
