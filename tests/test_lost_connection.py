@@ -80,11 +80,11 @@ def test_backend_terminated_during_a_load(database_url, engine, write_folder, ne
     load_folder(engine, write_folder(network_files))
     before = row_counts(engine, SNAPSHOT_TABLES)
     # A changed folder with a new lane: the load copies and inserts everything up to
-    # the new lane identities, then waits for the lock on ``lane``.
+    # the new site and lane identities, then waits for its lock on ``lane``.
     lanes = network_files["lanes.csv"] + "2026-W41,P1,C2,,7,,\n"
     folder = write_folder({**network_files, "lanes.csv": lanes})
 
-    done = run_while_terminated(database_url, ["load", str(folder)], "lane", "INSERT INTO lane")
+    done = run_while_terminated(database_url, ["load", str(folder)], "lane", "LOCK TABLE site, lane")
 
     assert done.returncode != 0
     assert "Traceback" not in done.stderr
