@@ -150,7 +150,7 @@ def test_embedded_server_is_used_without_a_url(
 
 def test_fresh_database_is_at_head_with_every_table(engine: sa.Engine) -> None:
     with engine.connect() as connection:
-        assert current_revision(connection) == head_revision() == "0011"
+        assert current_revision(connection) == head_revision() == "0012"
         tables = set(sa.inspect(connection).get_table_names())
     assert tables == TABLES | {"alembic_version"}
 
@@ -207,6 +207,32 @@ def test_downgrade_then_migrate_again(engine: sa.Engine, database_url: str) -> N
     with engine.connect() as connection:
         assert current_revision(connection) == head_revision()
         assert TABLES.issubset(sa.inspect(connection).get_table_names())
+
+
+def test_every_new_session_of_the_database_plans_without_jit(engine: sa.Engine, database_url: str) -> None:
+    # An analyst's session: a plain engine, without the planner's own "-c jit=off".
+    # (Test databases are clones of a template, which do not copy database settings:
+    # the migration is run here, down and up again.)
+    plain = sa.create_engine(database_url, poolclass=sa.pool.NullPool)
+    database_settings = sa.text(
+        "SELECT array_to_string(setconfig, ',') FROM pg_db_role_setting "
+        "WHERE setdatabase = (SELECT oid FROM pg_database WHERE datname = current_database()) AND setrole = 0"
+    )
+    try:
+        with engine.begin() as connection:
+            command.downgrade(alembic_config(connection), "0011")
+        with plain.connect() as connection:
+            assert connection.execute(database_settings).scalar_one_or_none() in (None, "")
+        ensure_schema(engine)
+        with plain.connect() as connection:
+            assert connection.execute(database_settings).scalar_one() == "jit=off"
+            assert connection.execute(sa.text("SHOW jit")).scalar_one() == "off"
+        with engine.begin() as connection:
+            command.downgrade(alembic_config(connection), "0011")
+        with plain.connect() as connection:
+            assert connection.execute(database_settings).scalar_one_or_none() in (None, "")
+    finally:
+        plain.dispose()
 
 
 def test_lock_table_goes_with_a_downgrade_and_comes_back_with_no_right_for_the_reader(engine: sa.Engine) -> None:

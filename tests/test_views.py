@@ -340,7 +340,7 @@ def test_role_and_views_survive_a_downgrade_and_upgrade(engine: sa.Engine, solve
     assert rows(engine, "SELECT 1 AS found FROM pg_roles WHERE rolname = :role", role=READER_ROLE) == [{"found": 1}]
     with engine.begin() as connection:
         command.upgrade(alembic_config(connection), "head")
-        assert current_revision(connection) == head_revision() == "0011"
+        assert current_revision(connection) == head_revision() == "0012"
     assert len(rows(engine, "SELECT * FROM site_price_history")) == len(PRICES)
 
 
