@@ -272,6 +272,30 @@ def test_a_lane_registry_read_before_a_new_lane_was_loaded_is_read_again(
     assert "P2->C3" in fresh.lane_labels().tolist()
 
 
+def test_a_lane_added_in_the_reading_transaction_is_found_though_the_registry_is_read_beside_it(
+    engine, write_folder, network_files
+):
+    # read_snapshot reads the lane registry on a second connection, which cannot
+    # see a lane the reading transaction itself added: it reads it again there.
+    load(engine, write_folder, network_files)
+    with engine.connect() as conn:
+        before = read_snapshot(conn, "2026-W41")
+    with engine.begin() as conn:
+        lane_id = conn.execute(text(
+            "INSERT INTO lane (origin_id, destination_id, mode) SELECT o.id, d.id, 'rail' "
+            "FROM site o, site d WHERE o.code = 'P2' AND d.code = 'C3' RETURNING id"
+        )).scalar_one()
+        conn.execute(text(
+            "INSERT INTO lane_rate (batch_id, period_id, lane_id, unit_cost) "
+            "SELECT ps.batch_id, ps.period_id, :lane, 4 FROM period_snapshot ps JOIN period p ON p.id = ps.period_id "
+            "WHERE p.code = '2026-W41'"
+        ), {"lane": lane_id})
+        inside = read_snapshot(conn, "2026-W41")
+        conn.rollback()
+    assert inside.lane_labels().tolist() == [*before.lane_labels().tolist(), "P2->C3 rail"]
+    assert inside.lane_id.tolist() == [*before.lane_id.tolist(), lane_id]
+
+
 def test_tight_week_really_is_tight(engine, write_folder):
     """The hand-made week exercises what the price checks below rely on."""
     load(engine, write_folder, TIGHT_FILES)
