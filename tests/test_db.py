@@ -24,6 +24,7 @@ from planner.database.migrate import (
     ensure_schema,
     head_revision,
     migrate,
+    newest_revision_file,
 )
 from planner.database.models import Base
 from planner.errors import PlannerError
@@ -184,6 +185,27 @@ def test_constraint_names_follow_the_convention(engine: sa.Engine) -> None:
     names.discard("alembic_version_pkc")
     assert all(name.split("_")[0] in {"pk", "fk", "uq", "ck"} for name in names)
     assert not any("_ck_" in name for name in names)
+
+
+def test_revision_files_are_numbered_in_order_so_the_newest_file_is_the_head() -> None:
+    # ensure_schema finds the head from the file names alone.
+    from alembic.script import ScriptDirectory
+
+    scripts = ScriptDirectory.from_config(alembic_config())
+    revisions = sorted(scripts.walk_revisions(), key=lambda script: script.revision)
+    for number, script in enumerate(revisions, start=1):
+        assert script.revision == f"{number:04d}"
+        assert Path(script.path).name.startswith(f"{number:04d}_")
+        assert script.down_revision == (None if number == 1 else f"{number - 1:04d}")
+    assert newest_revision_file() == head_revision() == revisions[-1].revision
+
+
+def test_a_database_behind_the_newest_file_is_upgraded_by_ensure_schema(engine: sa.Engine) -> None:
+    with engine.begin() as connection:
+        command.downgrade(alembic_config(connection), "0011")
+    ensure_schema(engine)
+    with engine.connect() as connection:
+        assert current_revision(connection) == head_revision()
 
 
 def test_migrate_is_idempotent(engine: sa.Engine) -> None:
