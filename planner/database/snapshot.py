@@ -13,7 +13,9 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
+import psycopg
 from sqlalchemy import Connection, text
+from sqlalchemy.exc import SQLAlchemyError
 
 from planner.core.edits import WeekNames
 from planner.core.week import INT64_MAX, NONE, SiteKind, WeekData
@@ -290,6 +292,7 @@ class _RegistryBeside:
     def __init__(self, conn: Connection) -> None:
         self._engine = conn.engine
         self._lanes: dict[str, np.ndarray] | None = None
+        self._error: BaseException | None = None
         self._thread = threading.Thread(target=self._read, name="read-lane-registry", daemon=True)
         self._thread.start()
 
@@ -297,11 +300,15 @@ class _RegistryBeside:
         try:
             with self._engine.connect() as other:
                 self._lanes = read_lanes(other)
-        except Exception:  # noqa: BLE001 - the caller reads it on its own connection instead
-            self._lanes = None
+        except (SQLAlchemyError, psycopg.Error, PlannerError):
+            self._lanes = None  # the caller reads it on its own connection instead
+        except BaseException as error:  # anything else is the caller's to see
+            self._error = error
 
     def result(self) -> dict[str, np.ndarray] | None:
         self._thread.join()
+        if self._error is not None:
+            raise self._error
         return self._lanes
 
 
