@@ -305,8 +305,11 @@ class _RegistryBeside:
         except BaseException as error:  # anything else is the caller's to see
             self._error = error
 
-    def result(self) -> dict[str, np.ndarray] | None:
+    def join(self) -> None:
         self._thread.join()
+
+    def result(self) -> dict[str, np.ndarray] | None:
+        self.join()
         if self._error is not None:
             raise self._error
         return self._lanes
@@ -358,7 +361,7 @@ def read_snapshot(
         rates, registry, at = _read_rates(conn, params, lanes, beside)
     finally:
         if beside is not None:
-            beside.result()  # never leave its connection open behind a failed read
+            beside.join()  # never leave its connection open behind a failed read
     origin = np.searchsorted(sites["site_id"], registry["origin_id"][at])
     destination = np.searchsorted(sites["site_id"], registry["destination_id"][at])
     week = WeekData(
