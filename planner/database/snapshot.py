@@ -8,8 +8,8 @@ chosen precision is refused with its table, key and value.
 from __future__ import annotations
 
 import hashlib
-import threading
 from collections.abc import Sequence
+from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass
 
 import numpy as np
@@ -278,41 +278,21 @@ def read_lanes(conn: Connection) -> dict[str, np.ndarray]:
     )
 
 
-class _RegistryBeside:
-    """The lane registry read on a second connection while ``conn`` reads the week.
+def _lanes_or_none(engine) -> dict[str, np.ndarray] | None:
+    """The lane registry read on a connection of its own, beside the week's own reads.
 
     The registry is as large as the week's rates (a 500,000-lane week: 0.4 s
     each, server-side); read side by side, on two server processes, they cost
     one. Lanes are only ever added, so a registry read in another transaction
-    serves as well; one that lacks a lane of the week (added in ``conn``'s own
-    transaction, say) is read again on ``conn`` by :func:`_read_rates`, as is
-    the registry when the second connection fails.
+    serves as well; one that lacks a lane of the week (added in the reader's own
+    transaction, say) is read again on the reader's connection by
+    :func:`_read_rates`, as is the registry when this read fails (None).
     """
-
-    def __init__(self, conn: Connection) -> None:
-        self._engine = conn.engine
-        self._lanes: dict[str, np.ndarray] | None = None
-        self._error: BaseException | None = None
-        self._thread = threading.Thread(target=self._read, name="read-lane-registry", daemon=True)
-        self._thread.start()
-
-    def _read(self) -> None:
-        try:
-            with self._engine.connect() as other:
-                self._lanes = read_lanes(other)
-        except (SQLAlchemyError, psycopg.Error, PlannerError):
-            self._lanes = None  # the caller reads it on its own connection instead
-        except BaseException as error:  # anything else is the caller's to see
-            self._error = error
-
-    def join(self) -> None:
-        self._thread.join()
-
-    def result(self) -> dict[str, np.ndarray] | None:
-        self.join()
-        if self._error is not None:
-            raise self._error
-        return self._lanes
+    try:
+        with engine.connect() as other:
+            return read_lanes(other)
+    except (SQLAlchemyError, psycopg.Error, PlannerError):
+        return None
 
 
 def _holds(ids: np.ndarray, at: np.ndarray, wanted: np.ndarray) -> bool:
@@ -352,16 +332,14 @@ def read_snapshot(
         When the period has no snapshot or a figure does not fit the precision.
     """
     period_id, batch_id, fingerprint = current_batch(conn, period, batch_id)
-    beside = _RegistryBeside(conn) if lanes is None else None
-    try:
+    # Leaving the pool waits for the registry read, also behind a failed read.
+    with ThreadPoolExecutor(max_workers=1, thread_name_prefix="read-lane-registry") as pool:
+        beside = pool.submit(_lanes_or_none, conn.engine) if lanes is None else None
         _check_precision(conn, period_id, batch_id, scaling)
         params = {"b": batch_id, "p": period_id, "q": scaling.quantity_scale, "c": scaling.unit_cost_scale}
         sites = _read_sites(conn, params)
         supply, demand, penalty = _read_needs(conn, params, sites["site_id"])
         rates, registry, at = _read_rates(conn, params, lanes, beside)
-    finally:
-        if beside is not None:
-            beside.join()  # never leave its connection open behind a failed read
     origin = np.searchsorted(sites["site_id"], registry["origin_id"][at])
     destination = np.searchsorted(sites["site_id"], registry["destination_id"][at])
     week = WeekData(
@@ -442,7 +420,7 @@ def _read_needs(conn: Connection, params: dict, site_id: np.ndarray) -> tuple[np
 
 
 def _read_rates(conn: Connection, params: dict, lanes: dict[str, np.ndarray] | None,
-                beside: _RegistryBeside | None = None):
+                beside: Future | None = None):
     """The week's lane rates sorted by lane id, the lane registry, and each rate's position in it.
 
     The week's rates alone (an index range of lane_rate) and the lane registry
