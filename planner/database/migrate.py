@@ -167,10 +167,14 @@ def _lock_for_upgrade(connection: sa.Connection, seconds: float) -> None:
     the database usable, and the wait is bounded like every other.
     """
     set_lock_timeout(connection, seconds)
-    if connection.execute(sa.text("SELECT to_regclass('alembic_version')")).scalar_one() is None:
+    if not _has_version_table(connection):
         connection.execute(sa.text("SELECT pg_advisory_xact_lock(:key)"), {"key": _FIRST_MIGRATION_LOCK_KEY})
     else:
         connection.execute(sa.text("LOCK TABLE alembic_version IN SHARE ROW EXCLUSIVE MODE"))
+
+
+def _has_version_table(connection: sa.Connection) -> bool:
+    return connection.execute(sa.text("SELECT to_regclass('alembic_version')")).scalar_one() is not None
 
 
 def _check_known_revision(revision: str, engine: sa.Engine) -> None:
@@ -196,7 +200,7 @@ def ensure_schema(engine: sa.Engine) -> None:
     """
     with engine.connect() as connection:
         at = []
-        if connection.execute(sa.text("SELECT to_regclass('alembic_version')")).scalar_one() is not None:
+        if _has_version_table(connection):
             at = connection.execute(sa.text("SELECT version_num FROM alembic_version")).scalars().all()
     if at != [newest_revision_file()]:
         migrate(engine)  # which asks Alembic itself
